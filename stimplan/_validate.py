@@ -1,0 +1,158 @@
+"""Small validators shared by the configuration dataclasses.
+
+Each validator raises :class:`stimplan.errors.ConfigError` naming the field,
+the value and the allowed range, and returns the value converted to the
+expected Python type.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+import numpy as np
+
+from .errors import ConfigError
+
+__all__ = [
+    "number",
+    "integer",
+    "choice",
+    "finite_array",
+    "boolean",
+]
+
+
+def _is_real(value: Any) -> bool:
+    return isinstance(value, (int, float, np.integer, np.floating)) and not isinstance(
+        value, (bool, np.bool_)
+    )
+
+
+def number(
+    field: str,
+    value: Any,
+    *,
+    lo: float | None = None,
+    hi: float | None = None,
+    lo_open: bool = False,
+    hi_open: bool = False,
+) -> float:
+    """Check that ``value`` is a finite real number in the given interval.
+
+    Parameters
+    ----------
+    field : str
+        Field path used in the error message.
+    value : object
+        Value to check.
+    lo, hi : float, optional
+        Interval bounds; ``None`` means unbounded.
+    lo_open, hi_open : bool
+        Whether the bound itself is excluded.
+
+    Returns
+    -------
+    float
+    """
+    allowed = _interval_text(lo, hi, lo_open, hi_open)
+    if not _is_real(value):
+        raise ConfigError(field, value, f"a real number {allowed}".strip())
+    x = float(value)
+    if not math.isfinite(x):
+        raise ConfigError(field, value, f"a finite number {allowed}".strip())
+    if lo is not None and (x < lo or (lo_open and x == lo)):
+        raise ConfigError(field, value, allowed)
+    if hi is not None and (x > hi or (hi_open and x == hi)):
+        raise ConfigError(field, value, allowed)
+    return x
+
+
+def integer(field: str, value: Any, *, lo: int | None = None, hi: int | None = None) -> int:
+    """Check that ``value`` is an integer in ``[lo, hi]``."""
+    allowed = _interval_text(lo, hi, False, False)
+    if isinstance(value, (bool, np.bool_)) or not isinstance(value, (int, np.integer)):
+        if isinstance(value, (float, np.floating)) and float(value).is_integer():
+            value = int(value)
+        else:
+            raise ConfigError(field, value, f"an integer {allowed}".strip())
+    x = int(value)
+    if (lo is not None and x < lo) or (hi is not None and x > hi):
+        raise ConfigError(field, value, f"an integer {allowed}".strip())
+    return x
+
+
+def boolean(field: str, value: Any) -> bool:
+    """Check that ``value`` is a boolean."""
+    if not isinstance(value, (bool, np.bool_)):
+        raise ConfigError(field, value, "true or false")
+    return bool(value)
+
+
+def choice(field: str, value: Any, options: tuple[str, ...] | list[str]) -> str:
+    """Check that ``value`` is one of ``options``."""
+    if not isinstance(value, str) or value not in options:
+        raise ConfigError(field, value, "one of " + ", ".join(repr(o) for o in options))
+    return value
+
+
+def finite_array(
+    field: str,
+    value: Any,
+    *,
+    shape: tuple[int, ...] | None = None,
+    ndim: int | None = None,
+    lo: float | None = None,
+    hi: float | None = None,
+    dtype: Any = np.float32,
+) -> np.ndarray:
+    """Check that ``value`` is a real array of finite numbers.
+
+    Parameters
+    ----------
+    field : str
+        Field path used in the error message.
+    value : array_like
+        The array.
+    shape : tuple of int, optional
+        Required shape.
+    ndim : int, optional
+        Required number of dimensions.
+    lo, hi : float, optional
+        Inclusive bounds on every element.
+    dtype : numpy dtype
+        Type of the returned array (no copy when it already matches).
+
+    Returns
+    -------
+    ndarray
+    """
+    try:
+        arr = np.asarray(value)
+    except Exception as exc:
+        raise ConfigError(field, type(value).__name__, "a numeric array", str(exc)) from None
+    if arr.dtype.kind not in "biuf":
+        raise ConfigError(field, arr, "a real numeric array")
+    if ndim is not None and arr.ndim != ndim:
+        raise ConfigError(field, arr, f"an array with {ndim} dimensions")
+    if shape is not None and tuple(arr.shape) != tuple(shape):
+        raise ConfigError(field, arr, f"an array of shape {tuple(shape)}")
+    arr = arr.astype(dtype, copy=False)
+    if arr.size and not np.all(np.isfinite(arr)):
+        bad = int(np.count_nonzero(~np.isfinite(arr)))
+        raise ConfigError(field, arr, "finite values only", f"{bad} NaN or infinite values")
+    if arr.size and lo is not None and float(arr.min()) < lo:
+        raise ConfigError(field, arr, f"values >= {lo}", f"minimum is {float(arr.min()):g}")
+    if arr.size and hi is not None and float(arr.max()) > hi:
+        raise ConfigError(field, arr, f"values <= {hi}", f"maximum is {float(arr.max()):g}")
+    return arr
+
+
+def _interval_text(lo: Any, hi: Any, lo_open: bool, hi_open: bool) -> str:
+    if lo is None and hi is None:
+        return ""
+    if hi is None:
+        return f"{'>' if lo_open else '>='} {lo}"
+    if lo is None:
+        return f"{'<' if hi_open else '<='} {hi}"
+    return f"in {'(' if lo_open else '['}{lo}, {hi}{')' if hi_open else ']'}"

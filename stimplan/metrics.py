@@ -1,0 +1,214 @@
+"""Figures of merit of a predicted retinal pattern.
+
+References
+----------
+.. [1] R. Di Leonardo, F. Ianni and G. Ruocco, *Opt. Express* 15, 1913
+   (2007): efficiency and uniformity ``u = 1 - (Imax - Imin)/(Imax + Imin)``.
+.. [2] J. W. Goodman, *Speckle Phenomena in Optics*, Roberts & Co. (2007),
+   §3.1: speckle contrast ``C = σ_I / <I>``.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from . import _validate as v
+from .errors import ConfigError
+
+__all__ = [
+    "efficiency",
+    "uniformity",
+    "coefficient_of_variation",
+    "speckle_contrast",
+    "rms_error",
+    "spot_powers",
+    "PatternMetrics",
+    "pattern_metrics",
+]
+
+
+def efficiency(sample_power_mw: np.ndarray, region: np.ndarray, input_power_mw: float) -> float:
+    """Diffraction efficiency: fraction of the laser power that lands in ``region``.
+
+    Parameters
+    ----------
+    sample_power_mw : ndarray
+        Power per retinal sample, mW.
+    region : ndarray
+        Coverage weights in [0, 1] of the target region, same shape.
+    input_power_mw : float
+        Laser power on the SLM, mW.
+
+    References
+    ----------
+    .. [1] Di Leonardo et al. (2007), eq. (6).
+    """
+    p = v.number("input_power_mw", input_power_mw, lo=0, lo_open=True)
+    _same_shape(sample_power_mw, region)
+    return float(np.sum(sample_power_mw * region, dtype=np.float64) / p)
+
+
+def uniformity(values: np.ndarray) -> float:
+    """Uniformity ``1 - (max - min)/(max + min)`` of a set of intensities or powers.
+
+    References
+    ----------
+    .. [1] Di Leonardo et al. (2007), eq. (7).
+    """
+    a = np.asarray(values, dtype=np.float64).ravel()
+    if a.size == 0:
+        raise ConfigError("values", a, "at least one value")
+    hi, lo = float(a.max()), float(a.min())
+    return 1.0 if hi + lo == 0 else 1.0 - (hi - lo) / (hi + lo)
+
+
+def coefficient_of_variation(values: np.ndarray) -> float:
+    """Standard deviation over mean (``nan`` for a zero mean)."""
+    a = np.asarray(values, dtype=np.float64).ravel()
+    if a.size == 0:
+        raise ConfigError("values", a, "at least one value")
+    m = a.mean()
+    return float(a.std() / m) if m != 0 else float("nan")
+
+
+def speckle_contrast(irradiance: np.ndarray, region: np.ndarray) -> float:
+    """Speckle contrast ``σ/<I>`` over the samples fully inside ``region``.
+
+    References
+    ----------
+    .. [1] Goodman, *Speckle Phenomena in Optics* (2007), §3.1.
+    """
+    _same_shape(irradiance, region)
+    inside = np.asarray(region) >= 0.999
+    if not np.any(inside):
+        raise ConfigError("region", "empty", "a region with at least one full sample")
+    return coefficient_of_variation(np.asarray(irradiance)[inside])
+
+
+def rms_error(irradiance: np.ndarray, target: np.ndarray, region: np.ndarray) -> float:
+    """Normalised RMS error against a target shape, after the best scale.
+
+    The prediction is scaled by the least-squares factor ``k`` that best fits
+    ``target`` over ``region``; the result is ``rms(k I - T) / mean(T)`` over
+    the region (samples weighted by their coverage).
+
+    References
+    ----------
+    .. [1] J. R. Fienup, *Appl. Opt.* 21, 2758 (1982): error metric of
+       iterative phase retrieval.
+    """
+    _same_shape(irradiance, target)
+    _same_shape(irradiance, region)
+    w = np.asarray(region, dtype=np.float64)
+    i = np.asarray(irradiance, dtype=np.float64)
+    t = np.asarray(target, dtype=np.float64)
+    den = np.sum(w * i * i)
+    if den <= 0:
+        return float("inf")
+    k = np.sum(w * i * t) / den
+    mean_t = np.sum(w * t) / np.sum(w)
+    if mean_t <= 0:
+        raise ConfigError("target", "all zero in region", "a target with light in the region")
+    return float(np.sqrt(np.sum(w * (k * i - t) ** 2) / np.sum(w)) / mean_t)
+
+
+def spot_powers(
+    sample_power_mw: np.ndarray, grid, centres_um: np.ndarray, radius_um: float
+) -> np.ndarray:
+    """Power inside a disc around each spot centre, mW.
+
+    Parameters
+    ----------
+    sample_power_mw : ndarray
+        Power per sample on ``grid``.
+    grid : RetinalGrid
+    centres_um : ndarray, shape (n, 2)
+        Spot centres ``(x, y)`` in µm.
+    radius_um : float
+        Integration radius, µm.
+    """
+    r = v.number("radius_um", radius_um, lo=0, lo_open=True)
+    c = np.asarray(centres_um, dtype=np.float64).reshape(-1, 2)
+    x, y = grid.coords_um()
+    out = np.empty(len(c))
+    for n, (cx, cy) in enumerate(c):
+        row, col = grid.index_of(cx, cy)
+        hr = int(np.ceil(r / grid.pitch_y_um)) + 1
+        hc = int(np.ceil(r / grid.pitch_x_um)) + 1
+        r0, r1 = max(int(row) - hr, 0), min(int(row) + hr + 2, grid.rows)
+        c0, c1 = max(int(col) - hc, 0), min(int(col) + hc + 2, grid.cols)
+        sub = sample_power_mw[r0:r1, c0:c1]
+        d2 = (x[:, c0:c1] - cx) ** 2 + (y[r0:r1, :] - cy) ** 2
+        out[n] = float(np.sum(sub[d2 <= r * r]))
+    return out
+
+
+@dataclass(frozen=True)
+class PatternMetrics:
+    """Summary figures of a predicted pattern against its target.
+
+    Attributes
+    ----------
+    efficiency : float
+        Fraction of the laser power on the lit target region.
+    uniformity : float
+        ``1 - (max - min)/(max + min)`` of the irradiance averaged over each
+        design sample (the resolution the hologram controls), over the design
+        samples of the lit region.
+    rms_error : float
+        Normalised RMS error of the design-sample irradiance against the
+        target, over the lit region dilated by two samples.
+    speckle_contrast : float
+        ``σ/<I>`` over the lit region at the prediction's full resolution.
+    mean_lit_irradiance_mw_per_mm2 : float
+        Mean irradiance on the lit region.
+    """
+
+    efficiency: float
+    uniformity: float
+    rms_error: float
+    speckle_contrast: float
+    mean_lit_irradiance_mw_per_mm2: float
+
+    def as_dict(self) -> dict[str, float]:
+        return dict(self.__dict__)
+
+
+def pattern_metrics(prediction, target) -> PatternMetrics:
+    """All of :class:`PatternMetrics` for a prediction and its target.
+
+    Parameters
+    ----------
+    prediction : RetinalPrediction
+    target : Target
+        On the design grid, concentric with the prediction grid.
+    """
+    from scipy import ndimage
+
+    from .target import resample_coverage
+
+    grid = prediction.grid
+    lit = target.region_on(grid, "lit")
+    irr = prediction.irradiance_mw_per_mm2
+    inside = lit >= 0.999
+    if not np.any(inside):
+        inside = lit > 0
+    coarse = resample_coverage(irr, grid, target.grid)
+    lit_d = target.lit
+    near = ndimage.binary_dilation(lit_d, iterations=2)
+    return PatternMetrics(
+        efficiency=efficiency(prediction.sample_power_mw, lit, prediction.power_mw),
+        uniformity=uniformity(coarse[lit_d]),
+        rms_error=rms_error(coarse, target.intensity, near.astype(np.float32)),
+        speckle_contrast=coefficient_of_variation(irr[inside]),
+        mean_lit_irradiance_mw_per_mm2=float(
+            np.sum(irr * lit, dtype=np.float64) / max(float(lit.sum()), 1e-12)
+        ),
+    )
+
+
+def _same_shape(a, b) -> None:
+    if np.shape(a) != np.shape(b):
+        raise ConfigError("region", np.shape(b), f"an array of shape {np.shape(a)}")
