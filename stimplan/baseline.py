@@ -120,6 +120,7 @@ def project_mask(
     *,
     eye_transmission: float = 1.0,
     illumination: np.ndarray | None = None,
+    field_center_um: tuple[float, float] = (0.0, 0.0),
 ) -> MaskPrediction:
     """Retinal irradiance of a stimulus shown by an amplitude mask.
 
@@ -137,6 +138,8 @@ def project_mask(
     illumination : ndarray, optional
         Relative illumination of the panel on ``grid`` (any scale; default
         uniform). It is normalised to carry the laser power over the field.
+    field_center_um : tuple of float
+        Retinal ``(x, y)`` of the centre of the projected image, µm.
 
     Returns
     -------
@@ -151,14 +154,16 @@ def project_mask(
     tau = v.number("eye.transmission", eye_transmission, lo=0, hi=1, lo_open=True)
     w = mask.field_width_um or grid.width_um
     h = mask.field_height_um or grid.height_um
-    if w > grid.width_um * (1 + 1e-9) or h > grid.height_um * (1 + 1e-9):
+    if w > grid.width_um * (1 + 1e-9) or h > grid.height_um * (1 + 1e-9):  # larger than the grid
         raise ConfigError(
             "mask.field_width_um",
             (w, h),
             f"at most the grid ({grid.width_um:.0f} × {grid.height_um:.0f} µm)",
         )
     x, y = grid.coords_um()
-    inside = ((np.abs(x) <= w / 2) & (np.abs(y) <= h / 2)).astype(np.float32)
+    cx = v.number("mask.field_center_um[0]", field_center_um[0])
+    cy = v.number("mask.field_center_um[1]", field_center_um[1])
+    inside = ((np.abs(x - cx) <= w / 2) & (np.abs(y - cy) <= h / 2)).astype(np.float32)
     if illumination is None:
         illum = inside
     else:

@@ -1,0 +1,360 @@
+"""Writing and reading export folders: hologram stack, timeline and manifest.
+
+An export folder holds
+
+* ``holograms.tif`` (multi-page TIFF, one page per distinct hologram, the SLM
+  grey values) or ``holograms/hologram_000.png`` ... (one PNG each);
+* ``timeline.csv``: one row per frame;
+* ``manifest.json``: format version, stimplan version, the fully resolved
+  configuration, the seed, the SHA-256 of every file, the predicted figures
+  of every hologram and frame, and the exposure verdict with the cautions.
+
+Writing is atomic (a temporary sibling folder renamed at the end), never
+replaces an existing folder without ``force``, and refuses a plan above the
+exposure limit unless an acknowledgement with a reason is given, which the
+manifest records.
+"""
+
+from __future__ import annotations
+
+import csv
+import datetime as _dt
+import getpass
+import hashlib
+import io
+import json
+import math
+from collections.abc import Iterator
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from . import __version__
+from ._atomic import atomic_folder
+from .cautions import CAUTIONS
+from .errors import ConfigError, ExposureLimitError, InputFileError, IntegrityError
+
+__all__ = [
+    "EXPORT_FORMAT",
+    "TIMELINE_COLUMNS",
+    "export_plan",
+    "load_export",
+    "ExportBundle",
+    "sha256_file",
+]
+
+EXPORT_FORMAT = "stimplan-export/1"
+STACK_FORMATS = ("tiff", "png")
+TIMELINE_COLUMNS = (
+    "index",
+    "start_ms",
+    "duration_ms",
+    "pulse_ms",
+    "rate_hz",
+    "power_mw",
+    "hologram_index",
+    "stimulus",
+)
+
+
+def sha256_file(path: str | Path, chunk: int = 1 << 20) -> str:
+    """SHA-256 of a file, hex."""
+    h = hashlib.sha256()
+    with open(path, "rb") as fh:
+        while block := fh.read(chunk):
+            h.update(block)
+    return h.hexdigest()
+
+
+def _finite(x: Any) -> Any:
+    """JSON-safe numbers: inf and nan become strings."""
+    if isinstance(x, float) and not math.isfinite(x):
+        return str(x)
+    if isinstance(x, dict):
+        return {k: _finite(v) for k, v in x.items()}
+    if isinstance(x, (list, tuple)):
+        return [_finite(v) for v in x]
+    if isinstance(x, np.generic):
+        return _finite(x.item())
+    return x
+
+
+def _hologram_entry(sp) -> dict[str, Any]:
+    entry: dict[str, Any] = {
+        "index": sp.hologram_index,
+        "stimulus": sp.name,
+        "method": sp.hologram.settings.method,
+        "iterations": sp.hologram.settings.iterations,
+        "seed": sp.hologram.settings.seed,
+        "offset_samples": list(sp.hologram.offset_samples),
+        "metrics_per_mw": sp.metrics.as_dict(),
+        "power_account_per_mw": sp.prediction.account.as_dict(),
+    }
+    if sp.readout is not None:
+        entry["on_pixels"] = np.flatnonzero(sp.on).tolist()
+        entry["pixel_power_uw_per_mw"] = np.asarray(sp.readout.power_uw).tolist()
+        entry["hologram_figures_per_mw"] = (
+            sp.hologram_figures.as_dict() if sp.hologram_figures else None
+        )
+        entry["mask_figures_per_mw"] = sp.mask_figures.as_dict() if sp.mask_figures else None
+    return entry
+
+
+def _frame_entry(fr) -> dict[str, Any]:
+    return {
+        "index": fr.index,
+        "stimulus": fr.stimulus,
+        "hologram_index": fr.hologram_index,
+        "power_mw": fr.power_mw,
+        "target_irradiance_mw_per_mm2": fr.target_irradiance_mw_per_mm2,
+        "on_pixel_power_uw": fr.on_pixel_power_uw,
+        "mask_on_pixel_power_uw": fr.mask_on_pixel_power_uw,
+    }
+
+
+def iter_grey_stack(plan) -> Iterator[np.ndarray]:
+    """The grey image of each distinct hologram, in stack order (one at a time)."""
+    for sp in plan.holograms:
+        yield sp.hologram.grey
+
+
+def _write_stack(folder: Path, plan, stack_format: str) -> list[str]:
+    written = []
+    if stack_format == "tiff":
+        import tifffile
+
+        path = folder / "holograms.tif"
+        with tifffile.TiffWriter(path) as tif:
+            for grey in iter_grey_stack(plan):
+                tif.write(grey, contiguous=False, metadata=None)
+        written.append(path.name)
+    else:
+        from PIL import Image
+
+        sub = folder / "holograms"
+        sub.mkdir()
+        for i, grey in enumerate(iter_grey_stack(plan)):
+            name = f"holograms/hologram_{i:03d}.png"
+            Image.fromarray(grey).save(folder / name)
+            written.append(name)
+    return written
+
+
+def _write_timeline(folder: Path, plan) -> str:
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(TIMELINE_COLUMNS)
+    for fr in plan.frames:
+        w.writerow(
+            [
+                fr.index,
+                f"{fr.start_ms:.6g}",
+                f"{fr.duration_ms:.6g}",
+                f"{fr.pulse_ms:.6g}",
+                f"{fr.rate_hz:.6g}",
+                f"{fr.power_mw:.6g}",
+                fr.hologram_index,
+                "" if fr.stimulus is None else fr.stimulus,
+            ]
+        )
+    (folder / "timeline.csv").write_text(buf.getvalue())
+    return "timeline.csv"
+
+
+def export_plan(
+    plan,
+    output: str | Path,
+    *,
+    force: bool = False,
+    stack_format: str = "tiff",
+    acknowledge_reason: str | None = None,
+    fail_after: str | None = None,
+) -> Path:
+    """Write an export folder for a plan.
+
+    Parameters
+    ----------
+    plan : Plan
+    output : path
+        The folder to create.
+    force : bool
+        Replace an existing folder.
+    stack_format : {"tiff", "png"}
+        One multi-page TIFF, or one PNG per hologram.
+    acknowledge_reason : str, optional
+        Required when the exposure verdict is "above": why the user exports
+        anyway. It is recorded in the manifest.
+    fail_after : str, optional
+        Testing hook: raise after writing this part ("stack", "timeline").
+
+    Returns
+    -------
+    Path
+        The export folder.
+
+    Raises
+    ------
+    ExposureLimitError
+        If the plan is above a limit and no acknowledgement is given.
+    ExportError
+        If ``output`` exists and ``force`` is false.
+    """
+    if stack_format not in STACK_FORMATS:
+        raise ConfigError("stack_format", stack_format, "one of 'tiff', 'png'")
+    ack = None
+    if plan.verdict == "above":
+        if not acknowledge_reason or not str(acknowledge_reason).strip():
+            ratio = plan.exposure.worst_ratio if plan.exposure else float("nan")
+            raise ExposureLimitError(
+                "exposure",
+                f"{ratio:.3g} of the limit",
+                "within the limit, or an acknowledgement with a reason (--acknowledge REASON)",
+                "the sequence is estimated above a retinal exposure limit",
+            )
+        ack = {
+            "acknowledged_above_limit": True,
+            "reason": str(acknowledge_reason).strip(),
+            "user": _user(),
+            "time_utc": _dt.datetime.now(_dt.UTC).isoformat(timespec="seconds"),
+        }
+    with atomic_folder(output, force=force) as tmp:
+        files = _write_stack(tmp, plan, stack_format)
+        if fail_after == "stack":
+            raise RuntimeError("simulated failure after the stack")
+        files.append(_write_timeline(tmp, plan))
+        if fail_after == "timeline":
+            raise RuntimeError("simulated failure after the timeline")
+        manifest = {
+            "format": EXPORT_FORMAT,
+            "stimplan_version": __version__,
+            "created_utc": _dt.datetime.now(_dt.UTC).isoformat(timespec="seconds"),
+            "title": plan.spec.title,
+            "seed": plan.seed,
+            "stack_format": stack_format,
+            "slm_shape": list(plan.spec.system.slm.shape),
+            "grey_dtype": str(plan.holograms[0].hologram.grey.dtype) if plan.holograms else None,
+            "config": plan.spec.to_dict(),
+            "files": {
+                name: {"sha256": sha256_file(tmp / name), "bytes": (tmp / name).stat().st_size}
+                for name in files
+            },
+            "holograms": [_hologram_entry(sp) for sp in plan.holograms],
+            "frames": [_frame_entry(fr) for fr in plan.frames],
+            "exposure": None if plan.exposure is None else plan.exposure.as_dict(),
+            "mask_exposure": None if plan.mask_exposure is None else plan.mask_exposure.as_dict(),
+            "verdict": plan.verdict,
+            "acknowledgement": ack,
+            "cautions": CAUTIONS,
+        }
+        (tmp / "manifest.json").write_text(json.dumps(_finite(manifest), indent=1))
+    return Path(output)
+
+
+def _user() -> str:
+    try:
+        return getpass.getuser()
+    except Exception:
+        return "unknown"
+
+
+@dataclass(frozen=True)
+class ExportBundle:
+    """An export folder read back.
+
+    Attributes
+    ----------
+    path : Path
+    manifest : dict
+    grey : ndarray
+        ``(n_holograms, rows, cols)`` grey values.
+    timeline : list of dict
+        Rows of ``timeline.csv`` with numeric columns converted.
+    """
+
+    path: Path
+    manifest: dict
+    grey: np.ndarray
+    timeline: list[dict[str, Any]]
+
+    @property
+    def verdict(self) -> str:
+        return self.manifest.get("verdict", "unknown")
+
+
+def load_export(path: str | Path, *, verify: bool = True) -> ExportBundle:
+    """Read an export folder (or its ``manifest.json``) and verify its checksums.
+
+    Raises
+    ------
+    InputFileError
+        If the folder or manifest is missing or malformed.
+    IntegrityError
+        If a file is missing or its SHA-256 differs from the manifest.
+    """
+    p = Path(path)
+    if p.is_file() and p.name == "manifest.json":
+        p = p.parent
+    mpath = p / "manifest.json"
+    if not mpath.is_file():
+        raise InputFileError("export", str(p), "an export folder with manifest.json")
+    try:
+        manifest = json.loads(mpath.read_text())
+    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
+        raise InputFileError("export.manifest", str(mpath), "valid JSON", str(exc)) from None
+    if not isinstance(manifest, dict) or manifest.get("format") != EXPORT_FORMAT:
+        raise InputFileError(
+            "export.manifest.format",
+            manifest.get("format") if isinstance(manifest, dict) else None,
+            repr(EXPORT_FORMAT),
+        )
+    files = manifest.get("files", {})
+    if verify:
+        for name, meta in files.items():
+            fp = p / name
+            if not fp.is_file():
+                raise IntegrityError(
+                    f"export.files[{name!r}]", str(fp), "a file listed in the manifest", "missing"
+                )
+            digest = sha256_file(fp)
+            if digest != meta.get("sha256"):
+                raise IntegrityError(
+                    f"export.files[{name!r}]",
+                    digest[:16] + "…",
+                    f"SHA-256 {str(meta.get('sha256'))[:16]}… from the manifest",
+                    "the file was changed after export",
+                )
+    grey = _read_stack(p, manifest)
+    timeline = []
+    with open(p / "timeline.csv", newline="") as fh:
+        for row in csv.DictReader(fh):
+            timeline.append(
+                {
+                    "index": int(row["index"]),
+                    "start_ms": float(row["start_ms"]),
+                    "duration_ms": float(row["duration_ms"]),
+                    "pulse_ms": float(row["pulse_ms"]),
+                    "rate_hz": float(row["rate_hz"]),
+                    "power_mw": float(row["power_mw"]),
+                    "hologram_index": int(row["hologram_index"]),
+                    "stimulus": row["stimulus"] or None,
+                }
+            )
+    return ExportBundle(p, manifest, grey, timeline)
+
+
+def _read_stack(p: Path, manifest: dict) -> np.ndarray:
+    n = len(manifest.get("holograms", []))
+    shape = tuple(manifest.get("slm_shape", (0, 0)))
+    if n == 0:
+        return np.zeros((0, *shape), np.uint8)
+    if manifest.get("stack_format") == "png":
+        from PIL import Image
+
+        pages = [np.asarray(Image.open(p / f"holograms/hologram_{i:03d}.png")) for i in range(n)]
+        return np.stack(pages)
+    import tifffile
+
+    arr = tifffile.imread(p / "holograms.tif")
+    return arr.reshape(n, *shape)

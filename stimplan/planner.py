@@ -1,0 +1,380 @@
+"""From a sequence to a plan: holograms, predictions, readouts, baseline and exposure.
+
+Each distinct stimulus is computed once. Everything downstream of the laser
+is linear in the laser power, so a stimulus is predicted once at 1 mW and
+every frame scales that prediction to its own power.
+
+References
+----------
+.. [1] ICNIRP, "Guidelines on limits of exposure to laser radiation of
+   wavelengths between 180 nm and 1,000 µm", *Health Phys.* 105, 271 (2013).
+"""
+
+from __future__ import annotations
+
+import json
+import sys
+from collections.abc import Callable
+from dataclasses import dataclass, field, replace
+
+import numpy as np
+
+from . import exposure as xp
+from .baseline import MaskPrediction, project_mask
+from .cautions import CAUTIONS
+from .comparison import ProjectorFigures, mask_for_implant, pixel_figures
+from .errors import ConfigError
+from .holography import Hologram, RetinalPrediction, design_hologram
+from .implant_target import implant_target, pixel_states
+from .metrics import PatternMetrics, pattern_metrics
+from .target import Target
+
+__all__ = ["StimulusPlan", "FramePlan", "Plan", "plan_sequence", "stimulus_key"]
+
+REFERENCE_POWER_MW = 1.0
+
+
+def stimulus_key(stimulus) -> str:
+    """A canonical text of a stimulus's parameters: equal keys, equal holograms."""
+    return json.dumps(stimulus.to_dict(), sort_keys=True, default=str)
+
+
+@dataclass(frozen=True, eq=False)
+class StimulusPlan:
+    """One distinct stimulus: its hologram and what it gives per mW of laser power.
+
+    Attributes
+    ----------
+    name : str
+        First sequence name of the stimulus (others may share it).
+    hologram_index : int
+        Page of the hologram stack.
+    target : Target
+    hologram : Hologram
+    prediction : RetinalPrediction
+        At :data:`REFERENCE_POWER_MW` (1 mW) of laser power.
+    metrics : PatternMetrics
+    mask_prediction : MaskPrediction
+        The amplitude mask at 1 mW.
+    on : ndarray of bool or None
+        ON implant pixels.
+    hologram_figures, mask_figures : ProjectorFigures or None
+        Per-pixel figures at 1 mW (None without an implant).
+    readout : PixelReadout or None
+        Hologram readout at 1 mW.
+    """
+
+    name: str
+    hologram_index: int
+    target: Target
+    hologram: Hologram
+    prediction: RetinalPrediction
+    metrics: PatternMetrics
+    mask_prediction: MaskPrediction
+    on: np.ndarray | None = None
+    hologram_figures: ProjectorFigures | None = None
+    mask_figures: ProjectorFigures | None = None
+    readout: object | None = None
+
+    def on_irradiance_per_mw(self, basis: str = "mean") -> float:
+        """ON-pixel retinal irradiance per mW of laser power ("mean" or "min")."""
+        if self.readout is None or self.on is None:
+            raise ConfigError("irradiance_mw_per_mm2", None, "an implant to define ON pixels")
+        irr = np.asarray(self.readout.mean_irradiance_mw_per_mm2)[self.on]
+        if basis == "min":
+            return float(irr.min())
+        return float(self.hologram_figures.on_irradiance_mw_per_mm2)
+
+    def mask_on_irradiance_per_mw(self, basis: str = "mean") -> float:
+        """The same for the amplitude mask."""
+        if self.mask_figures is None:
+            return float("nan")
+        return float(self.mask_figures.on_irradiance_mw_per_mm2)
+
+
+@dataclass(frozen=True)
+class FramePlan:
+    """One frame of the timeline, resolved.
+
+    ``stimulus`` is ``None`` and ``hologram_index`` is -1 for a dark pause.
+    """
+
+    index: int
+    start_ms: float
+    duration_ms: float
+    pulse_ms: float
+    rate_hz: float
+    power_mw: float
+    stimulus: str | None
+    hologram_index: int
+    pulses: tuple = field(repr=False, default=())
+    target_irradiance_mw_per_mm2: float | None = None
+    on_pixel_power_uw: float | None = None
+    mask_on_pixel_power_uw: float | None = None
+
+    @property
+    def lit(self) -> bool:
+        return self.stimulus is not None and self.power_mw > 0
+
+
+@dataclass(frozen=True, eq=False)
+class Plan:
+    """A planned sequence.
+
+    Attributes
+    ----------
+    spec : SequenceSpec
+    stimuli : dict of str to StimulusPlan
+        By sequence name (names of identical stimuli share one plan).
+    holograms : tuple of StimulusPlan
+        The distinct holograms in stack order.
+    frames : tuple of FramePlan
+    exposure : ExposureAssessment or None
+        The hologram sequence against the limits (None if nothing is lit).
+    mask_exposure : ExposureAssessment or None
+        The same timeline through the amplitude mask at the same powers.
+    """
+
+    spec: object
+    stimuli: dict[str, StimulusPlan]
+    holograms: tuple[StimulusPlan, ...]
+    frames: tuple[FramePlan, ...]
+    exposure: xp.ExposureAssessment | None
+    mask_exposure: xp.ExposureAssessment | None
+    cautions: str = CAUTIONS
+
+    @property
+    def seed(self) -> int:
+        return int(self.spec.seed)
+
+    @property
+    def verdict(self) -> str:
+        return "within" if self.exposure is None else self.exposure.verdict
+
+    @property
+    def duration_ms(self) -> float:
+        if not self.frames:
+            return 0.0
+        last = self.frames[-1]
+        return last.start_ms + last.duration_ms
+
+    def frames_of(self, name: str) -> list[FramePlan]:
+        return [f for f in self.frames if f.stimulus == name]
+
+    def max_laser_power_mw(self) -> float:
+        """Largest uniform scaling of every frame's power that stays within every limit, as the
+        peak frame power (mW)."""
+        if self.exposure is None:
+            return float("inf")
+        worst = max(self.exposure.worst_ratio, 0.0)
+        if self.exposure.protocol is not None:
+            worst = max(worst, self.exposure.protocol.worst_ratio)
+        peak = max((f.power_mw for f in self.frames if f.lit), default=0.0)
+        return float("inf") if worst == 0 else peak / worst
+
+
+def _build_target(stim, spec, grid) -> Target:
+    design = stim.render(grid)
+    if spec.implant is not None and spec.implant_aware:
+        return implant_target(design, grid, spec.implant, threshold=spec.on_threshold)
+    return Target.from_intensity(design, grid, name="image-domain")
+
+
+def _plan_stimulus(name, stim, index, spec, system, progress) -> StimulusPlan:
+    grid = system.design_grid()
+    st = spec.ifta
+    if spec.implant is not None and spec.implant_aware:
+        st = replace(st, group_weighting=True)
+    target = _build_target(stim, spec, grid)
+    holo = design_hologram(target, system, st, offset_um=spec.offset_um, progress=progress)
+    pred = holo.predict(system, oversample=spec.oversample)
+    metrics = pattern_metrics(pred, holo.target)
+    pg = pred.grid
+    mask = spec.mask
+    center = (0.0, 0.0)
+    if spec.implant is not None:
+        mask = mask_for_implant(mask, spec.implant)
+        center = (spec.implant.center_x_um, spec.implant.center_y_um)
+    fine = stim.render(pg)
+    mp = project_mask(
+        fine,
+        pg,
+        mask,
+        REFERENCE_POWER_MW,
+        eye_transmission=system.eye.transmission,
+        field_center_um=center,
+    )
+    on = hfig = mfig = readout = None
+    if spec.implant is not None:
+        wl = system.illumination.wavelength_nm
+        states = pixel_states(stim.render(grid), grid, spec.implant, threshold=spec.on_threshold)
+        on = states.on
+        readout = spec.implant.readout(pred.irradiance_mw_per_mm2, pg, wavelength_nm=wl)
+        mread = spec.implant.readout(mp.irradiance_mw_per_mm2, pg, wavelength_nm=wl)
+        if on.any():
+            hfig = pixel_figures("hologram", readout, on)
+            mfig = pixel_figures(f"{mask.kind.upper()} mask", mread, on)
+    return StimulusPlan(
+        name=name,
+        hologram_index=index,
+        target=holo.target,
+        hologram=holo,
+        prediction=pred,
+        metrics=metrics,
+        mask_prediction=mp,
+        on=on,
+        hologram_figures=hfig,
+        mask_figures=mfig,
+        readout=readout,
+    )
+
+
+def plan_sequence(
+    spec,
+    *,
+    progress: bool | Callable[[str, int, int], None] = True,
+) -> Plan:
+    """Plan a sequence: holograms, predictions, readouts, the mask baseline and exposure.
+
+    Parameters
+    ----------
+    spec : SequenceSpec
+        From :func:`stimplan.sequence.load_sequence`.
+    progress : bool or callable
+        ``True``: a tqdm bar on stderr; ``False``: silent; a callable is
+        called as ``progress(stage, done, total)``.
+
+    Returns
+    -------
+    Plan
+    """
+    from .sequence import expand_timeline
+
+    frames_spec = expand_timeline(spec)
+    system = replace(
+        spec.system, illumination=replace(spec.system.illumination, power_mw=REFERENCE_POWER_MW)
+    )
+    needed: list[str] = []
+    for fr in frames_spec:
+        if fr.stimulus is not None and fr.stimulus not in needed:
+            if spec.stimuli[fr.stimulus].kind != "blank":
+                needed.append(fr.stimulus)
+    # distinct stimuli -> one hologram each
+    by_key: dict[str, list[str]] = {}
+    for name in needed:
+        by_key.setdefault(stimulus_key(spec.stimuli[name]), []).append(name)
+    groups = list(by_key.values())
+    iters = spec.ifta.iterations
+    total = max(len(groups) * iters, 1)
+    bar = None
+    cb = None
+    if progress is True:
+        from tqdm import tqdm
+
+        bar = tqdm(
+            total=total, desc="holograms", unit="it", file=sys.stderr, leave=False, disable=None
+        )
+    elif callable(progress):
+        cb = progress
+    plans: dict[str, StimulusPlan] = {}
+    ordered: list[StimulusPlan] = []
+    try:
+        for gi, names in enumerate(groups):
+
+            def tick(i, _gi=gi):
+                if bar is not None:
+                    bar.update(1)
+                if cb is not None:
+                    cb("holograms", _gi * iters + i, total)
+
+            sp = _plan_stimulus(names[0], spec.stimuli[names[0]], gi, spec, system, tick)
+            ordered.append(sp)
+            for n in names:
+                plans[n] = sp
+    finally:
+        if bar is not None:
+            bar.close()
+
+    frames = tuple(_resolve_frame(fr, spec, plans) for fr in frames_spec)
+    wl = spec.system.illumination.wavelength_nm
+    exposure = _assess(frames, plans, "hologram", wl, spec)
+    mask_exposure = _assess(frames, plans, "mask", wl, spec)
+    return Plan(spec, plans, tuple(ordered), frames, exposure, mask_exposure)
+
+
+def _resolve_frame(fr, spec, plans) -> FramePlan:
+    name = fr.stimulus
+    if name is not None and spec.stimuli[name].kind == "blank":
+        name_plan = None
+    else:
+        name_plan = plans.get(name) if name is not None else None
+    if name_plan is None:
+        return FramePlan(
+            fr.index,
+            fr.start_ms,
+            fr.duration_ms,
+            fr.pulse_ms or 0.0,
+            fr.rate_hz or 0.0,
+            0.0,
+            name,
+            -1,
+            (),
+        )
+    if fr.irradiance_mw_per_mm2 is not None:
+        per_mw = name_plan.on_irradiance_per_mw(fr.irradiance_basis or "mean")
+        if per_mw <= 0:
+            raise ConfigError(
+                f"steps[{fr.step_index}].irradiance_mw_per_mm2",
+                fr.irradiance_mw_per_mm2,
+                "a stimulus that lights at least one implant pixel",
+            )
+        power = fr.irradiance_mw_per_mm2 / per_mw
+    elif fr.power_mw is not None:
+        power = float(fr.power_mw)
+    else:
+        power = float(spec.system.illumination.power_mw)
+    on_uw = mask_uw = None
+    if name_plan.hologram_figures is not None:
+        on_uw = name_plan.hologram_figures.on_power_uw * power
+        mask_uw = name_plan.mask_figures.on_power_uw * power
+    return FramePlan(
+        index=fr.index,
+        start_ms=fr.start_ms,
+        duration_ms=fr.duration_ms,
+        pulse_ms=fr.pulse_ms,
+        rate_hz=fr.rate_hz,
+        power_mw=power,
+        stimulus=name,
+        hologram_index=name_plan.hologram_index,
+        pulses=tuple(fr.pulses()),
+        target_irradiance_mw_per_mm2=fr.irradiance_mw_per_mm2,
+        on_pixel_power_uw=on_uw,
+        mask_on_pixel_power_uw=mask_uw,
+    )
+
+
+def _assess(frames, plans, which: str, wavelength_nm: float, spec):
+    """Exposure of the timeline; frames of one map and power are merged (same exposure)."""
+    groups: dict[tuple[int, float], list] = {}
+    by_index = {p.hologram_index: p for p in plans.values()}
+    for fr in frames:
+        if not fr.lit or not fr.pulses:
+            continue
+        groups.setdefault((fr.hologram_index, round(fr.power_mw, 12)), []).extend(fr.pulses)
+    if not groups:
+        return None
+    xframes = []
+    grid = None
+    for (hi, power), pulses in groups.items():
+        sp = by_index[hi]
+        pred = sp.prediction if which == "hologram" else sp.mask_prediction
+        grid = sp.prediction.grid
+        irr = pred.irradiance_mw_per_mm2 * np.float32(power / REFERENCE_POWER_MW)
+        xframes.append(xp.Frame(irr, tuple(sorted(pulses, key=lambda p: p.start_ms)), sp.name))
+    return xp.assess_sequence(
+        xframes,
+        grid,
+        wavelength_nm,
+        protocol=spec.protocol,
+        subject=spec.system.eye.name,
+    )
