@@ -19,6 +19,12 @@ from .errors import ExportError
 __all__ = ["atomic_folder", "atomic_file"]
 
 
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
+
+
 @contextlib.contextmanager
 def atomic_folder(target: str | Path, *, force: bool = False) -> Iterator[Path]:
     """Yield a temporary folder that becomes ``target`` when the block succeeds.
@@ -42,6 +48,7 @@ def atomic_folder(target: str | Path, *, force: bool = False) -> Iterator[Path]:
         )
     dst.parent.mkdir(parents=True, exist_ok=True)
     tmp = Path(tempfile.mkdtemp(prefix=f".{dst.name}.partial-", dir=dst.parent))
+    os.chmod(tmp, 0o777 & ~_umask())  # mkdtemp makes 0700; give the usual permissions
     try:
         yield tmp
         if dst.exists():
@@ -66,6 +73,7 @@ def atomic_file(target: str | Path, *, force: bool = False, mode: str = "wb") ->
         )
     dst.parent.mkdir(parents=True, exist_ok=True)
     fd, name = tempfile.mkstemp(prefix=f".{dst.name}.partial-", dir=dst.parent)
+    os.chmod(name, 0o666 & ~_umask())  # mkstemp makes 0600
     try:
         with os.fdopen(fd, mode) as fh:
             yield fh

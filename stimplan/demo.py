@@ -1,101 +1,75 @@
-"""The built-in demo: one hologram for a rat-eye grating patch, with its figures.
+"""The built-in demo: the rat grating-acuity scenario, planned, exported and reported.
 
-The scenario and its numbers are a demo of our own, not measured data.
+The scenario file ships with the package (``stimplan/data`` is the project's
+``stimuli/`` folder). Its numbers are a demo of our own, not a measured
+protocol.
 """
 
 from __future__ import annotations
 
-import json
 import sys
-import time
+from dataclasses import replace
+from importlib import resources
 from pathlib import Path
 
-import numpy as np
-
 from ._atomic import atomic_folder
-from .baseline import MASK_PRESETS, project_mask
-from .holography import IftaSettings, design_hologram
-from .metrics import pattern_metrics
-from .system import SLM, Eye, Illumination, OpticalSystem, Relay
-from .target import Target
+
+__all__ = ["DEMO_SCENARIO", "demo_path", "demo_spec", "run_demo", "demo_system", "demo_target"]
+
+DEMO_SCENARIO = "rat_grating_acuity.toml"
 
 
-def demo_system(quick: bool = False) -> OpticalSystem:
-    """Demo optics: 8 µm SLM, 880 nm Gaussian beam, relay ×0.5, rat eye (demo values)."""
-    n = 256 if quick else 512
-    return OpticalSystem(
-        SLM(n, n, pitch_um=8.0, fill_factor=0.93, phase_levels=256, zero_order_fraction=0.02),
-        Illumination(880.0, power_mw=5.0, profile="gaussian", waist_mm=n * 8e-3 / 4.0),
-        Relay(magnification=0.5),
-        Eye(um_per_deg=60.0, pupil_diameter_mm=4.0, transmission=0.8, name="rat"),
-    )
+def demo_path(name: str = DEMO_SCENARIO) -> Path:
+    """Path of a shipped scenario file."""
+    return Path(str(resources.files("stimplan").joinpath("data", name)))
 
 
-def demo_target(system: OpticalSystem) -> Target:
-    """Three bars of 110 µm period inside a 400 µm window, off the axis by 250 µm."""
+def demo_spec(quick: bool = False, name: str = DEMO_SCENARIO):
+    """The demo sequence; ``quick`` halves the SLM (same field, coarser sampling)."""
+    from .sequence import load_sequence
+
+    spec = load_sequence(demo_path(name))
+    if quick:
+        sysm = spec.system
+        slm = replace(sysm.slm, pixels_x=sysm.slm.pixels_x // 2, pixels_y=sysm.slm.pixels_y // 2)
+        ill = replace(sysm.illumination, waist_mm=sysm.illumination.waist_mm / 2)
+        relay = sysm.relay
+        if relay.fresnel_focal_mm is not None:
+            relay = replace(relay, fresnel_focal_mm=relay.fresnel_focal_mm / 2)
+        spec = replace(spec, system=replace(sysm, slm=slm, illumination=ill, relay=relay))
+    return spec
+
+
+def demo_system(quick: bool = True):
+    """The demo's optical system."""
+    return demo_spec(quick).system
+
+
+def demo_target(system, name: str = "bars_2px"):
+    """One demo stimulus as an image-domain target on ``system``'s design grid."""
+    from .target import Target
+
+    spec = demo_spec(system.slm.pixels_x < 1024)
     grid = system.design_grid()
-    x, y = grid.coords_um()
-    period_um, cx = 110.0, 250.0
-    bars = (np.mod(x - cx, period_um) < period_um / 2) & (np.abs(x - cx) < 200) & (np.abs(y) < 200)
-    return Target.from_intensity(bars.astype(np.float32), grid, name="grating-patch")
+    return Target.from_intensity(spec.stimuli[name].render(grid), grid, name=name)
 
 
 def run_demo(output: str | Path, *, force: bool = False, quick: bool = False) -> int:
-    """Compute the demo hologram, print its figures and write them to ``output``."""
-    system = demo_system(quick)
-    target = demo_target(system)
-    t0 = time.perf_counter()
-    holo = design_hologram(
-        target, system, IftaSettings(method="mraf", iterations=60, seed=1, initial="lens")
-    )
-    pred = holo.predict(system)
-    m = pattern_metrics(pred, holo.target)
-    grid = pred.grid
-    mask = MASK_PRESETS["lcd"]
-    mp = project_mask(
-        holo.target.intensity_on(grid),
-        grid,
-        mask,
-        system.illumination.power_mw,
-        eye_transmission=system.eye.transmission,
-    )
-    lit = holo.target.region_on(grid, "lit")
-    mask_lit = float(np.sum(mp.irradiance_mw_per_mm2 * lit) / lit.sum())
-    dt = time.perf_counter() - t0
-    acc = pred.account
-    lines = [
-        f"stimplan demo: {target.name} on a {system.slm.pixels_x}x{system.slm.pixels_y} SLM "
-        f"({dt:.1f} s)",
-        f"  retinal sample pitch       {system.sample_pitch_x_um:8.2f} um",
-        f"  steerable field            {system.field_width_um:8.0f} um "
-        f"({system.field_width_deg:.1f} deg)",
-        f"  laser power on SLM         {acc.input_mw:8.2f} mW",
-        f"  efficiency (lit region)    {m.efficiency:8.3f}",
-        f"  uniformity                 {m.uniformity:8.3f}",
-        f"  RMS error                  {m.rms_error:8.3f}",
-        f"  speckle contrast           {m.speckle_contrast:8.3f}",
-        f"  lit irradiance, hologram   {m.mean_lit_irradiance_mw_per_mm2:8.3f} mW/mm^2",
-        f"  lit irradiance, LCD mask   {mask_lit:8.3f} mW/mm^2",
-        f"  hologram gain over mask    {m.mean_lit_irradiance_mw_per_mm2 / mask_lit:8.1f} x",
-        "  power account (mW): "
-        + ", ".join(
-            f"{k.replace('_mw', '')} {v:.3f}"
-            for k, v in acc.as_dict().items()
-            if v is not None and k != "input_mw"
-        ),
-    ]
-    print("\n".join(lines))
-    with atomic_folder(output, force=force) as tmp:
-        from PIL import Image
+    """Plan the demo scenario, write ``export/`` and ``report.html`` into ``output``.
 
-        Image.fromarray(holo.grey).save(tmp / "hologram.png")
-        summary = {
-            "system": system.summary(),
-            "metrics": m.as_dict(),
-            "mask_lit_irradiance_mw_per_mm2": mask_lit,
-            "power_account_mw": acc.as_dict(),
-            "seed": holo.settings.seed,
-        }
-        (tmp / "summary.json").write_text(json.dumps(summary, indent=2))
-    print(f"  written to {Path(output)}", file=sys.stderr)
+    Prints the summary table (with the cautions). The output folder is
+    written atomically and never replaced without ``force``.
+    """
+    from .cli import print_table
+    from .export import export_plan
+    from .planner import plan_sequence
+    from .report import write_report
+
+    spec = demo_spec(quick)
+    plan = plan_sequence(spec, progress=True)
+    with atomic_folder(output, force=force) as tmp:
+        export_plan(plan, tmp / "export")
+        write_report(plan, tmp / "report.html")
+    print_table(plan)
+    print(f"demo written to {Path(output)} (export/ and report.html)", file=sys.stderr)
     return 0

@@ -133,6 +133,8 @@ class Plan:
         The hologram sequence against the limits (None if nothing is lit).
     mask_exposure : ExposureAssessment or None
         The same timeline through the amplitude mask at the same powers.
+    stimulus_exposure : dict of int to ExposureAssessment
+        Each hologram's frames alone (by hologram index).
     """
 
     spec: object
@@ -141,6 +143,7 @@ class Plan:
     frames: tuple[FramePlan, ...]
     exposure: xp.ExposureAssessment | None
     mask_exposure: xp.ExposureAssessment | None
+    stimulus_exposure: dict = field(default_factory=dict)
     cautions: str = CAUTIONS
 
     @property
@@ -299,7 +302,16 @@ def plan_sequence(
     wl = spec.system.illumination.wavelength_nm
     exposure = _assess(frames, plans, "hologram", wl, spec)
     mask_exposure = _assess(frames, plans, "mask", wl, spec)
-    return Plan(spec, plans, tuple(ordered), frames, exposure, mask_exposure)
+    per_stimulus = {}
+    if len(ordered) > 1:
+        for sp in ordered:
+            own = [f for f in frames if f.hologram_index == sp.hologram_index]
+            a = _assess(own, plans, "hologram", wl, spec)
+            if a is not None:
+                per_stimulus[sp.hologram_index] = a
+    elif ordered and exposure is not None:
+        per_stimulus[ordered[0].hologram_index] = exposure
+    return Plan(spec, plans, tuple(ordered), frames, exposure, mask_exposure, per_stimulus)
 
 
 def _resolve_frame(fr, spec, plans) -> FramePlan:

@@ -1,24 +1,90 @@
-"""The `stimplan` command: demo, exit codes, no overwrite without --force."""
+"""The `stimplan` command: demo, check, export, report; exit codes; no overwrite."""
 
 from __future__ import annotations
 
 import json
 
+import pytest
+
 from stimplan.cli import main
+from stimplan.export import load_export
+
+from .scenarios import small_sequence
 
 
-def test_demo_writes_results_and_refuses_overwrite(tmp_path, capsys):
+@pytest.fixture
+def seq(tmp_path):
+    p = tmp_path / "small.toml"
+    p.write_text(small_sequence())
+    return p
+
+
+def test_demo_writes_export_and_report(tmp_path, capsys):
     out = tmp_path / "demo"
     assert main(["demo", "-o", str(out), "--quick"]) == 0
     text = capsys.readouterr().out
-    assert "efficiency" in text and "hologram gain over mask" in text
-    summary = json.loads((out / "summary.json").read_text())
-    acc = summary["power_account_mw"]
-    parts = [v for k, v in acc.items() if k not in ("input_mw", "signal_mw", "elsewhere_mw")]
-    assert abs(sum(parts) - acc["input_mw"]) < 1e-3 * acc["input_mw"]  # conservation of energy
+    for word in ("effic.", "ON µW holo", "ON µW mask", "ON CV", "exposure", "verdict"):
+        assert word in text
+    assert "not a safety approval" in text
+    assert (out / "report.html").is_file()
+    bundle = load_export(out / "export")
+    assert bundle.manifest["verdict"] == "within"
     # common practice: never overwrite without an explicit flag; exit code 1, one line
     assert main(["demo", "-o", str(out), "--quick"]) == 1
     err = capsys.readouterr().err
     assert "--force" in err and len(err.strip().splitlines()) == 1
-    assert main(["demo", "-o", str(out), "--quick", "--force"]) == 0
     assert not [p for p in tmp_path.iterdir() if p.name.startswith(".")]
+
+
+def test_check_json_has_the_documented_keys(seq, capsys):
+    assert main(["check", str(seq), "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    assert {"stimuli", "exposure", "cautions"} <= set(data)
+    for s in data["stimuli"]:
+        assert {"name", "efficiency", "on_pixel_power_uw", "on_pixel_cv"} <= set(s)
+        assert {"hologram", "mask"} <= set(s["on_pixel_power_uw"])
+        assert s["on_pixel_power_uw"]["hologram"] > s["on_pixel_power_uw"]["mask"]
+    assert data["exposure"]["verdict"] in ("within", "above")
+    assert {"worst_ratio", "binding_rule"} <= set(data["exposure"])
+    assert "estimate" in data["cautions"]
+
+
+def test_invalid_input_exits_1_naming_the_key(tmp_path, capsys):
+    bad = tmp_path / "bad.toml"
+    bad.write_text(small_sequence().replace("wavelength_nm = 880", "wavelength_nm = -5"))
+    assert main(["check", str(bad)]) == 1
+    err = capsys.readouterr().err.strip()
+    assert "wavelength_nm" in err and "Traceback" not in err
+    assert len(err.splitlines()) == 1
+
+
+def test_over_limit_export_exits_2_and_acknowledgement_is_recorded(tmp_path, capsys):
+    hot = tmp_path / "hot.toml"
+    hot.write_text(small_sequence(irradiance=5000.0))
+    out = tmp_path / "exp"
+    assert main(["export", str(hot), "-o", str(out)]) == 2
+    assert "acknowledge" in capsys.readouterr().err
+    assert not out.exists()
+    reason = "optics bench, power meter only"
+    assert main(["export", str(hot), "-o", str(out), "--acknowledge", reason]) == 0
+    assert load_export(out).manifest["acknowledgement"]["reason"] == reason
+
+
+def test_report_command_and_overwrite(seq, tmp_path):
+    out = tmp_path / "r.html"
+    assert main(["report", str(seq), "-o", str(out)]) == 0
+    assert "not a safety approval" in out.read_text()
+    assert main(["report", str(seq), "-o", str(out)]) == 1
+    assert main(["report", str(seq), "-o", str(out), "--force"]) == 0
+
+
+def test_version_and_help(capsys):
+    with pytest.raises(SystemExit) as info:
+        main(["--version"])
+    assert info.value.code == 0
+    assert "stimplan" in capsys.readouterr().out
+    for cmd in ("demo", "check", "export", "report", "preview"):
+        with pytest.raises(SystemExit) as info:
+            main([cmd, "--help"])
+        assert info.value.code == 0
+        assert "usage" in capsys.readouterr().out

@@ -1,6 +1,15 @@
-"""Sample data: the built-in demo computed and shown with physical scale (µm)."""
+"""Sample data: the built-in demo computed and shown with physical scale (µm).
+
+``demo_retina`` is one stimulus of the rat demo; the scenario samples plan a
+whole demo sequence (on an SLM of half the pixels, the same field sampled
+more coarsely, so that they open in seconds rather than half a minute).
+"""
 
 from __future__ import annotations
+
+from ._layers import grid_placement, plan_layers
+
+__all__ = ["demo_retina", "demo_rat_grating_acuity", "demo_human_letter_acuity"]
 
 
 def demo_retina() -> list[tuple]:
@@ -12,18 +21,42 @@ def demo_retina() -> list[tuple]:
     target = demo_target(system)
     holo = design_hologram(target, system, IftaSettings(method="mraf", iterations=40, seed=1))
     pred = holo.predict(system)
-    dg, pg = target.grid, pred.grid
+    top = float(pred.irradiance_mw_per_mm2.max()) or 1.0
     return [
         (
             target.intensity,
-            {"name": "target (relative)", "scale": (dg.pitch_y_um, dg.pitch_x_um),
-             "translate": dg.origin_um, "units": "um"},
+            {"name": "target (relative)", **grid_placement(target.grid)},
             "image",
         ),
         (
             pred.irradiance_mw_per_mm2,
-            {"name": "retina irradiance (mW/mm^2)", "scale": (pg.pitch_y_um, pg.pitch_x_um),
-             "translate": pg.origin_um, "colormap": "inferno", "units": "um"},
+            {
+                "name": "retina irradiance (mW/mm^2)",
+                "colormap": "inferno",
+                "contrast_limits": (0.0, top),
+                **grid_placement(pred.grid),
+            },
             "image",
         ),
     ]
+
+
+def _scenario(name: str) -> list[tuple]:
+    from stimplan.demo import demo_spec
+    from stimplan.planner import plan_sequence
+
+    from ._readout import announce
+
+    plan = plan_sequence(demo_spec(quick=True, name=name), progress=True)
+    announce(plan)
+    return plan_layers(plan)
+
+
+def demo_rat_grating_acuity() -> list[tuple]:
+    """The rat grating-acuity demo sequence, planned (per-frame retina with a time axis)."""
+    return _scenario("rat_grating_acuity.toml")
+
+
+def demo_human_letter_acuity() -> list[tuple]:
+    """The human letter-acuity demo sequence, planned (per-frame retina with a time axis)."""
+    return _scenario("human_letter_acuity.toml")

@@ -1,0 +1,353 @@
+"""What the stimulus panel computes, without Qt.
+
+The panel's inputs become a :class:`StimulusRequest`; :func:`compute_stimulus`
+turns it into a one-step sequence on the chosen optics and plans it with
+:func:`stimplan.planner.plan_sequence`, so the panel shows exactly the
+figures the command line and the report would.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass, field, replace
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+__all__ = [
+    "OPTICS_PRESETS",
+    "SOURCE_IMPLANT",
+    "NO_IMPLANT",
+    "PANEL_KINDS",
+    "StimulusRequest",
+    "StimulusResult",
+    "load_optics",
+    "with_slm_pixels",
+    "stimulus_fields",
+    "compute_stimulus",
+]
+
+#: Optics presets of the panel: the systems of the demo scenarios (our own numbers).
+OPTICS_PRESETS: Mapping[str, str] = {
+    "rat grating-acuity demo": "rat_grating_acuity.toml",
+    "human letter-acuity demo": "human_letter_acuity.toml",
+}
+#: Implant choice: the one of the optics source.
+SOURCE_IMPLANT = "as in optics"
+#: Implant choice: no implant.
+NO_IMPLANT = "none"
+#: Stimulus kinds the panel offers (the compositions and the blank need a sequence file).
+PANEL_KINDS = (
+    "grating",
+    "checkerboard",
+    "landolt",
+    "tumbling_e",
+    "letter",
+    "spot",
+    "bar",
+    "annulus",
+    "flash",
+    "image",
+)
+#: Starting values of required stimulus sizes, µm (any value the user then edits).
+_REQUIRED_DEFAULTS: Mapping[str, Any] = {
+    "period_um": 220.0,
+    "check_um": 110.0,
+    "height_um": 400.0,
+    "diameter_um": 300.0,
+    "width_um": 100.0,
+    "length_um": 600.0,
+    "inner_diameter_um": 200.0,
+    "outer_diameter_um": 500.0,
+    "path": "",
+    ("image", "width_um"): 600.0,
+}
+
+
+def load_optics(source: str):
+    """The sequence whose optics, eye and implant the panel uses.
+
+    Parameters
+    ----------
+    source : str
+        A key of :data:`OPTICS_PRESETS` or the path of a sequence file.
+
+    Returns
+    -------
+    SequenceSpec
+
+    Raises
+    ------
+    SequenceError
+        If the file is not a valid sequence.
+    """
+    from stimplan.demo import demo_path
+    from stimplan.sequence import load_sequence
+
+    if source in OPTICS_PRESETS:
+        return load_sequence(demo_path(OPTICS_PRESETS[source]))
+    return load_sequence(Path(source))
+
+
+def with_slm_pixels(system, pixels: int | None):
+    """The system with an SLM of ``pixels`` per side and the same pixel pitch.
+
+    The retinal field (``λ f / (p M)``) stays; it is sampled more coarsely
+    (or finely). The Gaussian waist and the Fresnel focal length scale with
+    the SLM width, so that the beam fills the SLM and the zero-order disc
+    keeps its size, as :func:`stimplan.demo.demo_spec` does for ``quick``.
+
+    Parameters
+    ----------
+    system : OpticalSystem
+    pixels : int or None
+        Pixels per side; ``None`` or 0 keeps the system.
+
+    Returns
+    -------
+    OpticalSystem
+    """
+    from stimplan import _validate as v
+    from stimplan.system import MAX_SLM_PIXELS
+
+    if not pixels:
+        return system
+    n = v.integer("slm pixels per side", pixels, lo=16, hi=MAX_SLM_PIXELS)
+    slm = system.slm
+    k = n / max(slm.pixels_x, slm.pixels_y)
+    ill = replace(system.illumination, waist_mm=system.illumination.waist_mm * k)
+    relay = system.relay
+    if relay.fresnel_focal_mm is not None:
+        relay = replace(relay, fresnel_focal_mm=relay.fresnel_focal_mm * k)
+    return replace(system, slm=replace(slm, pixels_x=n, pixels_y=n), illumination=ill, relay=relay)
+
+
+def stimulus_fields(kind: str) -> list[tuple[str, Any, Any, tuple | None]]:
+    """Editable parameters of a stimulus kind: ``(name, type, starting value, choices)``.
+
+    Sizes are in µm (the names say so), angles in degrees; ``choices`` lists
+    the allowed values of a parameter that takes one of a few names.
+    """
+    import typing
+
+    from stimplan.stimuli import E_ORIENTATIONS, LANDOLT_ORIENTATIONS, SLOAN_LETTERS
+    from stimplan.stimuli.base import STIMULUS_KINDS
+
+    named = {
+        ("landolt", "orientation"): tuple(LANDOLT_ORIENTATIONS),
+        ("tumbling_e", "orientation"): tuple(E_ORIENTATIONS),
+        ("letter", "letter"): tuple(SLOAN_LETTERS),
+    }
+    cls = STIMULUS_KINDS[kind]
+    hints = typing.get_type_hints(cls)
+    out = []
+    for f in dataclasses.fields(cls):
+        if f.name == "max_pixels":
+            continue
+        hint = hints.get(f.name, float)
+        choices = named.get((kind, f.name))
+        if typing.get_origin(hint) is typing.Literal:
+            choices, hint = tuple(typing.get_args(hint)), str
+        if f.default is not dataclasses.MISSING:
+            start = f.default
+        else:
+            start = _REQUIRED_DEFAULTS.get((kind, f.name), _REQUIRED_DEFAULTS.get(f.name, 1.0))
+        out.append((f.name, hint, start, choices))
+    return out
+
+
+@dataclass(frozen=True)
+class StimulusRequest:
+    """The inputs of the stimulus panel.
+
+    Parameters
+    ----------
+    optics : str
+        A key of :data:`OPTICS_PRESETS` or a sequence file.
+    kind : str
+        Stimulus kind, one of :data:`PANEL_KINDS`.
+    params : dict
+        The kind's parameters (sizes in µm).
+    implant : str
+        :data:`SOURCE_IMPLANT`, :data:`NO_IMPLANT` or an implant preset.
+    implant_aware : bool
+        Light only the ON pixels' photodiodes (ignored without an implant).
+    method : str
+        IFTA method.
+    iterations : int
+    seed : int
+    slm_pixels : int
+        SLM pixels per side, 0 for the optics' own SLM.
+    power_mw : float or None
+        Laser power on the SLM; ``None`` for the optics' own.
+    pulse_ms, rate_hz, train_ms : float
+        The pulse train the exposure estimate assumes.
+    """
+
+    optics: str
+    kind: str
+    params: dict[str, Any] = field(default_factory=dict)
+    implant: str = SOURCE_IMPLANT
+    implant_aware: bool = True
+    method: str = "mraf"
+    iterations: int = 40
+    seed: int = 0
+    slm_pixels: int = 0
+    power_mw: float | None = None
+    pulse_ms: float = 10.0
+    rate_hz: float = 20.0
+    train_ms: float = 1000.0
+
+
+@dataclass(frozen=True, eq=False)
+class StimulusResult:
+    """One computed stimulus at the requested laser power.
+
+    Attributes
+    ----------
+    request : StimulusRequest
+    plan : Plan
+        The one-step plan (predictions at 1 mW, exposure at ``power_mw``).
+    power_mw : float
+        Laser power on the SLM.
+    prediction : RetinalPrediction
+        Retina at ``power_mw``.
+    pixel_power_uw : ndarray or None
+        Power on each photodiode at ``power_mw``, µW.
+    """
+
+    request: StimulusRequest
+    plan: Any
+    power_mw: float
+    prediction: Any
+    pixel_power_uw: np.ndarray | None
+
+    @property
+    def stimulus_plan(self):
+        return self.plan.holograms[0]
+
+    @property
+    def system(self):
+        return replace(
+            self.plan.spec.system,
+            illumination=replace(self.plan.spec.system.illumination, power_mw=self.power_mw),
+        )
+
+    @property
+    def hologram(self):
+        return self.stimulus_plan.hologram
+
+    @property
+    def implant(self):
+        return self.plan.spec.implant
+
+    @property
+    def on(self):
+        return self.stimulus_plan.on
+
+    @property
+    def readout(self):
+        return self.stimulus_plan.readout
+
+
+def _one_step_spec(request: StimulusRequest):
+    from stimplan import _validate as v
+    from stimplan.errors import ConfigError
+    from stimplan.holography import IftaSettings
+    from stimplan.implant import implant_preset
+    from stimplan.sequence import StepSpec
+    from stimplan.stimuli import stimulus_from_dict
+
+    base = load_optics(request.optics)
+    v.choice("stimulus.kind", request.kind, PANEL_KINDS)
+    system = with_slm_pixels(base.system, request.slm_pixels)
+    power = base.system.illumination.power_mw if request.power_mw is None else request.power_mw
+    power = v.number("laser power_mw", power, lo=0, lo_open=True)
+    system = replace(system, illumination=replace(system.illumination, power_mw=power))
+    if request.implant == SOURCE_IMPLANT:
+        implant = base.implant
+    elif request.implant == NO_IMPLANT:
+        implant = None
+    else:
+        implant = implant_preset(request.implant)
+    aware = bool(request.implant_aware) and implant is not None
+    pitch = None if implant is None else implant.pitch_um
+    params = dict(request.params)
+    if request.kind == "image" and not str(params.get("path") or "").strip():
+        raise ConfigError("image.path", params.get("path"), "an image file (PNG, TIFF, ...)")
+    stim = stimulus_from_dict(request.kind, params, eye=system.eye, pitch_um=pitch)
+    ifta = IftaSettings(
+        method=request.method,
+        iterations=request.iterations,
+        seed=request.seed,
+        mraf_mix=base.ifta.mraf_mix,
+        window_margin_samples=base.ifta.window_margin_samples,
+        quantized_iterations=min(base.ifta.quantized_iterations, request.iterations),
+        initial=base.ifta.initial,
+        group_weighting=aware,
+        group_gain=base.ifta.group_gain,
+    )
+    step = StepSpec(
+        (request.kind,),
+        duration_ms=request.train_ms,
+        pulse_ms=request.pulse_ms,
+        rate_hz=request.rate_hz,
+        power_mw=power,
+    )
+    return replace(
+        base,
+        title=f"{request.kind} on {request.optics}",
+        seed=request.seed,
+        system=system,
+        implant=implant,
+        implant_aware=aware,
+        stimuli={request.kind: stim},
+        steps=(step,),
+        ifta=ifta,
+        shuffle=False,
+        repeats=1,
+        raw={},
+    ), power
+
+
+def compute_stimulus(
+    request: StimulusRequest,
+    progress: Callable[[int, int], None] | None = None,
+) -> StimulusResult:
+    """Design, predict and assess one stimulus.
+
+    Parameters
+    ----------
+    request : StimulusRequest
+    progress : callable, optional
+        Called as ``progress(done, total)`` with IFTA iterations.
+
+    Returns
+    -------
+    StimulusResult
+
+    Raises
+    ------
+    StimplanError
+        For bad input (the message names the field, the value and what is allowed).
+    """
+    from stimplan.errors import ConfigError
+    from stimplan.planner import REFERENCE_POWER_MW, plan_sequence
+
+    spec, power = _one_step_spec(request)
+    cb = None
+    if progress is not None:
+
+        def cb(stage: str, done: int, total: int) -> None:
+            progress(done, total)
+
+    plan = plan_sequence(spec, progress=cb or False)
+    if not plan.holograms:
+        raise ConfigError("stimulus", request.kind, "a stimulus that lights something")
+    sp = plan.holograms[0]
+    k = power / REFERENCE_POWER_MW
+    pred = sp.prediction.scaled_to(power)
+    pixel = None if sp.readout is None else np.asarray(sp.readout.power_uw) * k
+    return StimulusResult(request, plan, power, pred, pixel)

@@ -1,0 +1,270 @@
+"""Exposure and efficiency figures of a plan, as the readout panel shows them (no Qt).
+
+Every text here that carries an exposure figure carries the cautions
+(:data:`stimplan.cautions.CAUTIONS` or, in one-line warnings,
+:data:`stimplan.cautions.CAUTION_SHORT`).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+from napari.utils.notifications import show_warning
+
+from stimplan.cautions import CAUTION_SHORT, CAUTIONS
+
+__all__ = [
+    "StimulusFigures",
+    "Readout",
+    "readout_from_plan",
+    "readout_text",
+    "verdict_line",
+    "plan_alerts",
+    "announce",
+    "announce_export",
+]
+
+_RULE_NAMES = {
+    "single_pulse": "single pulse",
+    "average_power": "average power",
+    "repeated_pulse": "repeated pulse (C_P)",
+}
+
+
+@dataclass(frozen=True)
+class StimulusFigures:
+    """Figures of one distinct stimulus at the power of its first lit frame.
+
+    Attributes
+    ----------
+    name : str
+    laser_power_mw : float
+    efficiency : float
+        Fraction of the laser power on the lit target region.
+    on_power_uw, mask_on_power_uw : float or None
+        Mean power per ON implant pixel, hologram and amplitude mask, µW.
+    exposure_ratio : float or None
+        Worst exposure/limit ratio of this stimulus's frames alone.
+    verdict : str or None
+    """
+
+    name: str
+    laser_power_mw: float
+    efficiency: float
+    on_power_uw: float | None
+    mask_on_power_uw: float | None
+    exposure_ratio: float | None
+    verdict: str | None
+
+    @property
+    def gain_over_mask(self) -> float | None:
+        """ON-pixel power of the hologram over that of the mask."""
+        if not self.on_power_uw or not self.mask_on_power_uw:
+            return None
+        return self.on_power_uw / self.mask_on_power_uw
+
+
+@dataclass(frozen=True)
+class Readout:
+    """What the exposure-and-efficiency panel shows for a plan.
+
+    Attributes
+    ----------
+    title : str
+    stimuli : tuple of StimulusFigures
+    rule_ratios : dict of str to float
+        Exposure/limit ratio of each rule of the standard (empty if nothing is lit).
+    worst_ratio : float
+        Worst ratio of the standard (0 if nothing is lit).
+    binding_rule : str or None
+    verdict_standard : str
+        ``"within"`` or ``"above"`` the standard's limit.
+    protocol : str or None
+        The protocol cap's line, if the sequence has one.
+    protocol_ratio : float or None
+        Worst ratio to the protocol cap.
+    verdict : str
+        ``"within"`` or ``"above"`` (standard or protocol cap).
+    beam_at_pupil_mm, pupil_mm : float
+    overfills_pupil : bool
+    cautions : str
+    """
+
+    title: str
+    stimuli: tuple[StimulusFigures, ...]
+    rule_ratios: dict[str, float]
+    worst_ratio: float
+    binding_rule: str | None
+    verdict_standard: str
+    protocol: str | None
+    protocol_ratio: float | None
+    verdict: str
+    beam_at_pupil_mm: float
+    pupil_mm: float
+    overfills_pupil: bool
+    cautions: str = field(default=CAUTIONS, repr=False)
+
+
+def readout_from_plan(plan, title: str | None = None) -> Readout:
+    """The figures of a plan.
+
+    Parameters
+    ----------
+    plan : Plan
+    title : str, optional
+        Default: the sequence's title.
+
+    Returns
+    -------
+    Readout
+    """
+    rows = []
+    for sp in plan.holograms:
+        lit = [f for f in plan.frames if f.lit and f.hologram_index == sp.hologram_index]
+        power = lit[0].power_mw if lit else 0.0
+        h, m = sp.hologram_figures, sp.mask_figures
+        exp = plan.stimulus_exposure.get(sp.hologram_index)
+        rows.append(
+            StimulusFigures(
+                name=lit[0].stimulus if lit else sp.name,
+                laser_power_mw=power,
+                efficiency=float(sp.metrics.efficiency),
+                on_power_uw=None if h is None else h.on_power_uw * power,
+                mask_on_power_uw=None if m is None else m.on_power_uw * power,
+                exposure_ratio=None if exp is None else exp.worst_ratio,
+                verdict=None if exp is None else exp.verdict,
+            )
+        )
+    e = plan.exposure
+    system = plan.spec.system
+    return Readout(
+        title=title or plan.spec.title,
+        stimuli=tuple(rows),
+        rule_ratios={} if e is None else {r: res.ratio for r, res in e.rules.items()},
+        worst_ratio=0.0 if e is None else float(e.worst_ratio),
+        binding_rule=None if e is None else e.binding_rule,
+        verdict_standard="within" if e is None else e.verdict_standard,
+        protocol=None if e is None or e.protocol is None else e.protocol.describe(),
+        protocol_ratio=None if e is None or e.protocol is None else e.protocol.worst_ratio,
+        verdict=plan.verdict,
+        beam_at_pupil_mm=system.beam_diameter_at_pupil_mm,
+        pupil_mm=system.eye.pupil_diameter_mm,
+        overfills_pupil=system.overfills_pupil,
+    )
+
+
+def _g(x: float | None, spec: str = ".3g") -> str:
+    if x is None or (isinstance(x, float) and math.isnan(x)):
+        return "-"
+    return format(x, spec)
+
+
+def readout_text(r: Readout) -> str:
+    """The readout as plain text, ending with the cautions."""
+    lines = [r.title, ""]
+    lines.append("stimulus: laser mW | efficiency | ON pixel uW hologram / mask (gain) | exposure")
+    for s in r.stimuli:
+        gain = s.gain_over_mask
+        lines.append(
+            f"{s.name}: {_g(s.laser_power_mw)} mW | {_g(s.efficiency, '.3f')} | "
+            f"{_g(s.on_power_uw)} / {_g(s.mask_on_power_uw)} uW"
+            f"{'' if gain is None else f' ({gain:.3g}x)'} | "
+            f"{_g(s.exposure_ratio)} of the limit, {s.verdict or '-'}"
+        )
+    lines.append("")
+    lines.append("exposure of the whole sequence (ratio to the limit of each rule):")
+    if not r.rule_ratios:
+        lines.append("  nothing is lit")
+    for rule, ratio in r.rule_ratios.items():
+        mark = "  <- binding" if rule == r.binding_rule else ""
+        lines.append(f"  {_RULE_NAMES.get(rule, rule)}: {ratio:.3g}{mark}")
+    if r.protocol:
+        lines.append("  " + r.protocol)
+    lines.append(
+        f"standard: worst {r.worst_ratio:.3g} of the limit, {r.verdict_standard} the limit"
+    )
+    if r.protocol_ratio is not None:
+        lines.append(f"protocol cap: worst {r.protocol_ratio:.3g} of the cap")
+    lines.append(f"verdict: {r.verdict} the limit")
+    pupil = "OVERFILLS" if r.overfills_pupil else "fits"
+    lines.append(
+        f"beam at the pupil {r.beam_at_pupil_mm:.2f} mm, pupil {r.pupil_mm:.2f} mm: {pupil}"
+    )
+    lines.append("")
+    lines.append("Caution: " + r.cautions)
+    return "\n".join(lines)
+
+
+def verdict_line(r: Readout) -> str:
+    """One line with the verdict, the worst ratios and the short caution."""
+    text = f"verdict: {r.verdict.upper()} the limit; standard {r.worst_ratio:.3g} of the limit"
+    if r.protocol_ratio is not None:
+        text += f", protocol cap {r.protocol_ratio:.3g}"
+    return f"{text}. {CAUTION_SHORT}"
+
+
+def plan_alerts(plan, subject: str = "the sequence") -> list[str]:
+    """Warnings a user must see for a plan: limits exceeded, a clipped beam.
+
+    Parameters
+    ----------
+    plan : Plan
+    subject : str
+        What the plan is, for the messages (a sequence, or one pulsed stimulus).
+
+    Returns
+    -------
+    list of str
+        One message per problem: the sequence above the limit, the frames of
+        each stimulus above the limit on their own, the beam overfilling the
+        pupil. Exposure messages carry the short caution.
+    """
+    out = []
+    e = plan.exposure
+    if e is not None and e.verdict == "above":
+        parts = []
+        if e.verdict_standard == "above":
+            parts.append(f"{e.worst_ratio:.3g} of the standard's limit ({e.binding_rule})")
+        if e.protocol is not None and e.protocol.verdict == "above":
+            parts.append(
+                f"{e.protocol.worst_ratio:.3g} of the protocol cap '{e.protocol.cap.name}'"
+            )
+        out.append(f"stimplan: {subject} is above the limit: {'; '.join(parts)}. {CAUTION_SHORT}")
+    names = {sp.hologram_index: sp for sp in plan.holograms}
+    for hi, a in sorted(plan.stimulus_exposure.items()):
+        if a.verdict == "above" and len(plan.stimulus_exposure) > 1:
+            frames = [f.index for f in plan.frames if f.hologram_index == hi and f.lit]
+            shown = ", ".join(str(i) for i in frames[:8]) + (" ..." if len(frames) > 8 else "")
+            out.append(
+                f"stimplan: frames {shown} ({names[hi].name}) are above the limit on their own "
+                f"({a.worst_ratio:.3g} of the limit). {CAUTION_SHORT}"
+            )
+    s = plan.spec.system
+    if s.overfills_pupil:
+        out.append(
+            f"stimplan: the beam at the pupil ({s.beam_diameter_at_pupil_mm:.2f} mm) overfills "
+            f"the {s.eye.pupil_diameter_mm:.2f} mm pupil: light is clipped."
+        )
+    return out
+
+
+def announce(plan, subject: str = "the sequence") -> list[str]:
+    """Show :func:`plan_alerts` as napari warnings; return the messages."""
+    msgs = plan_alerts(plan, subject)
+    for m in msgs:
+        show_warning(m)
+    return msgs
+
+
+def announce_export(bundle) -> list[str]:
+    """Warn when an export read back was estimated above the limit (and acknowledged)."""
+    if bundle.verdict != "above":
+        return []
+    ack = bundle.manifest.get("acknowledgement") or {}
+    m = (
+        f"stimplan: this export was estimated above the limit and exported with the reason "
+        f"{ack.get('reason')!r} ({ack.get('user')}, {ack.get('time_utc')}). {CAUTION_SHORT}"
+    )
+    show_warning(m)
+    return [m]

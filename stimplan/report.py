@@ -1,0 +1,308 @@
+"""The summary report: one self-contained HTML file with the figures embedded.
+
+For each distinct stimulus: the target, the SLM phase, the predicted retina
+with the implant outline, the per-pixel power map, a histogram of ON and OFF
+pixel power and a bar chart of hologram against mask. For the sequence: the
+timeline and the exposure ratios against the limit. And the cautions, at the
+top and beside every exposure figure.
+"""
+
+from __future__ import annotations
+
+import base64
+import datetime as _dt
+import html
+import io
+from pathlib import Path
+
+import numpy as np
+
+from . import __version__
+from ._atomic import atomic_file
+from .cautions import CAUTIONS, EDITION
+
+__all__ = ["render_report", "write_report"]
+
+
+def _fig_to_data_uri(fig) -> str:
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png", dpi=90, bbox_inches="tight")
+    import matplotlib.pyplot as plt
+
+    plt.close(fig)
+    return "data:image/png;base64," + base64.b64encode(buf.getvalue()).decode("ascii")
+
+
+def _extent(grid):
+    x0, x1, y0, y1 = grid.extent_um
+    return (x0, x1, y0, y1)
+
+
+def _zoom_box(plan):
+    """Axis limits (µm) around the implant, or the whole field."""
+    imp = plan.spec.implant
+    if imp is None:
+        return None
+    x0, x1, y0, y1 = imp.footprint_extent_um
+    m = 0.15 * max(x1 - x0, y1 - y0)
+    return (x0 - m, x1 + m, y0 - m, y1 + m)
+
+
+def _outline(ax, plan, **kw):
+    imp = plan.spec.implant
+    if imp is None:
+        return
+    from matplotlib.collections import PolyCollection
+
+    polys = imp.pixel_polygons_um("active")
+    ax.add_collection(
+        PolyCollection(polys, facecolors="none", edgecolors=kw.get("color", "c"), linewidths=0.4)
+    )
+
+
+def _stimulus_figures(plan, sp, power_mw: float) -> list[tuple[str, str]]:
+    import matplotlib
+
+    matplotlib.use("Agg", force=True)
+    import matplotlib.pyplot as plt
+    from matplotlib.collections import PolyCollection
+
+    out = []
+    box = _zoom_box(plan)
+    dg = sp.target.grid
+    pg = sp.prediction.grid
+
+    fig, axes = plt.subplots(1, 3, figsize=(13, 4.2), layout="constrained")
+    ax = axes[0]
+    ax.imshow(sp.target.intensity, extent=_extent(dg), cmap="gray", origin="upper")
+    _outline(ax, plan, color="tab:orange")
+    ax.set_title("target (relative)")
+    ax = axes[1]
+    im = ax.imshow(sp.hologram.phase_rad, cmap="twilight", vmin=0, vmax=2 * np.pi)
+    ax.set_title("SLM phase (rad), designed")
+    ax.set_xlabel("SLM column")
+    ax.set_ylabel("SLM row")
+    fig.colorbar(im, ax=ax, fraction=0.046)
+    ax = axes[2]
+    irr = sp.prediction.irradiance_mw_per_mm2 * np.float32(power_mw)
+    im = ax.imshow(irr, extent=_extent(pg), cmap="inferno", origin="upper")
+    _outline(ax, plan)
+    ax.plot([0], [0], "c+", ms=10)
+    ax.set_title(f"predicted retina at {power_mw:.3g} mW (mW/mm²)")
+    fig.colorbar(im, ax=ax, fraction=0.046)
+    for a in (axes[0], axes[2]):
+        a.set_xlabel("x (µm)")
+        a.set_ylabel("y (µm)")
+        if box:
+            a.set_xlim(box[0], box[1])
+            a.set_ylim(box[2], box[3])
+    out.append(("Target, SLM phase and predicted retina", _fig_to_data_uri(fig)))
+
+    if sp.readout is not None and plan.spec.implant is not None:
+        imp = plan.spec.implant
+        p_uw = np.asarray(sp.readout.power_uw) * power_mw
+        fig, axes = plt.subplots(1, 3, figsize=(13, 4.2), layout="constrained")
+        ax = axes[0]
+        pc = PolyCollection(
+            imp.pixel_polygons_um("cell"),
+            array=p_uw,
+            cmap="viridis",
+            edgecolors="k",
+            linewidths=0.2,
+        )
+        ax.add_collection(pc)
+        ax.autoscale_view()
+        ax.set_aspect("equal")
+        fig.colorbar(pc, ax=ax, fraction=0.046, label="µW")
+        ax.set_title("photodiode power per pixel")
+        ax.set_xlabel("x (µm)")
+        ax.set_ylabel("y (µm)")
+        ax = axes[1]
+        on = sp.on
+        bins = np.linspace(0, max(float(p_uw.max()), 1e-12) * 1.05, 40)
+        ax.hist(p_uw[on], bins=bins, alpha=0.7, label=f"ON ({int(on.sum())})")
+        if (~on).any():
+            ax.hist(p_uw[~on], bins=bins, alpha=0.7, label=f"OFF ({int((~on).sum())})")
+        ax.set_xlabel("power per pixel (µW)")
+        ax.set_ylabel("pixels")
+        ax.legend()
+        ax.set_title("ON and OFF pixels")
+        ax = axes[2]
+        if sp.hologram_figures is not None:
+            labels = ["hologram", sp.mask_figures.label]
+            vals = [
+                sp.hologram_figures.on_power_uw * power_mw,
+                sp.mask_figures.on_power_uw * power_mw,
+            ]
+            ax.bar(labels, vals, color=["tab:red", "tab:gray"])
+            ax.set_ylabel("mean ON-pixel power (µW)")
+            ax.set_yscale("log")
+            ax.set_title(f"same laser power ({power_mw:.3g} mW)")
+        out.append(("Per-pixel power", _fig_to_data_uri(fig)))
+    return out
+
+
+def _sequence_figures(plan) -> list[tuple[str, str]]:
+    import matplotlib
+
+    matplotlib.use("Agg", force=True)
+    import matplotlib.pyplot as plt
+
+    out = []
+    fig, ax = plt.subplots(figsize=(13, 3.2), layout="constrained")
+    names = sorted({f.stimulus for f in plan.frames if f.stimulus})
+    colours = {n: plt.cm.tab10(i % 10) for i, n in enumerate(names)}
+    for f in plan.frames:
+        if not f.lit:
+            continue
+        ax.broken_barh(
+            [(f.start_ms / 1e3, f.duration_ms / 1e3)],
+            (0, f.power_mw),
+            facecolors=colours[f.stimulus],
+            alpha=0.8,
+        )
+    for n in names:
+        ax.plot([], [], color=colours[n], lw=6, label=n)
+    ax.set_xlabel("time (s)")
+    ax.set_ylabel("laser power (mW)")
+    ax.set_xlim(0, max(plan.duration_ms / 1e3, 1e-3))
+    top = max((f.power_mw for f in plan.frames), default=1.0)
+    ax.set_ylim(0, top * 1.15 if top > 0 else 1)
+    ax.legend(loc="upper right", fontsize=7, ncol=4)
+    ax.set_title("timeline (bars: frames, height: laser power on the SLM)")
+    out.append(("Timeline", _fig_to_data_uri(fig)))
+
+    if plan.exposure is not None:
+        fig, ax = plt.subplots(figsize=(8, 3.4), layout="constrained")
+        rules = list(plan.exposure.rules)
+        vals = [plan.exposure.rules[r].ratio for r in rules]
+        labels = [r.replace("_", " ") for r in rules]
+        if plan.mask_exposure is not None:
+            mvals = [plan.mask_exposure.rules[r].ratio for r in rules]
+            x = np.arange(len(rules))
+            ax.bar(x - 0.2, vals, 0.4, label="hologram", color="tab:red")
+            ax.bar(x + 0.2, mvals, 0.4, label="mask, same powers", color="tab:gray")
+            ax.set_xticks(x, labels)
+            ax.legend()
+        else:
+            ax.bar(labels, vals, color="tab:red")
+        if plan.exposure.protocol is not None:
+            ax.bar(["protocol cap"], [plan.exposure.protocol.worst_ratio], color="tab:purple")
+        ax.axhline(1.0, color="k", ls="--", lw=1)
+        ax.text(0.01, 1.02, "limit", transform=ax.get_yaxis_transform())
+        ax.set_ylabel("exposure / limit")
+        ax.set_title("exposure ratios (estimate, not a safety approval)")
+        out.append(("Exposure ratios against the limit", _fig_to_data_uri(fig)))
+    return out
+
+
+def _table(rows: list[tuple[str, str]]) -> str:
+    body = "".join(f"<tr><th>{html.escape(k)}</th><td>{html.escape(v)}</td></tr>" for k, v in rows)
+    return f"<table>{body}</table>"
+
+
+def render_report(plan) -> str:
+    """The report as an HTML string (figures embedded as PNG data URIs)."""
+    spec = plan.spec
+    sysm = spec.system
+    parts = [
+        "<!doctype html><html><head><meta charset='utf-8'>",
+        f"<title>{html.escape(spec.title)} — stimplan report</title>",
+        "<style>body{font-family:sans-serif;max-width:1200px;margin:auto;padding:1em}"
+        "table{border-collapse:collapse;margin:.5em 0}th,td{border:1px solid #ccc;"
+        "padding:2px 8px;text-align:left}th{background:#f4f4f4}.caution{border:2px solid "
+        "#c00;background:#fff4f4;padding:.6em}img{max-width:100%}</style></head><body>",
+        f"<h1>{html.escape(spec.title)}</h1>",
+        f"<p>stimplan {__version__}, seed {plan.seed}, created "
+        f"{_dt.datetime.now(_dt.UTC).isoformat(timespec='seconds')}</p>",
+        f"<div class='caution'><b>Caution.</b> {html.escape(CAUTIONS)}</div>",
+        "<h2>Optical system</h2>",
+        _table(
+            [(k, f"{v:.4g}" if isinstance(v, float) else str(v)) for k, v in sysm.summary().items()]
+            + [
+                ("wavelength_nm", f"{sysm.illumination.wavelength_nm:g}"),
+                ("eye", sysm.eye.name),
+                (
+                    "implant",
+                    "none"
+                    if spec.implant is None
+                    else f"{spec.implant.name}, {spec.implant.n_pixels} pixels of "
+                    f"{spec.implant.pitch_um:g} µm",
+                ),
+            ]
+        ),
+    ]
+    parts.append("<h2>Exposure (estimate)</h2>")
+    if plan.exposure is None:
+        parts.append("<p>No light is shown in this sequence.</p>")
+    else:
+        e = plan.exposure
+        rows = [
+            ("edition", EDITION),
+            ("verdict", e.verdict),
+            ("worst ratio to the standard's limit", f"{e.worst_ratio:.3g} ({e.binding_rule})"),
+            ("margin", f"{e.margin:.3g}×"),
+            (
+                "worst place",
+                f"x {e.worst.x_um:.0f} µm, y {e.worst.y_um:.0f} µm, "
+                f"α {e.worst.alpha_mrad:.3g} mrad",
+            ),
+            ("peak retinal irradiance", f"{e.peak_irradiance_mw_per_mm2:.3g} mW/mm²"),
+            ("largest dose", f"{e.max_dose_mj_per_mm2:.3g} mJ/mm²"),
+            (
+                "largest uniform power scaling within every limit",
+                f"peak frame power {plan.max_laser_power_mw():.3g} mW",
+            ),
+            ("basis", e.basis),
+        ]
+        if e.protocol is not None:
+            rows.append(("protocol cap", e.protocol.describe()))
+        if plan.mask_exposure is not None:
+            rows.append(
+                ("mask at the same powers", f"{plan.mask_exposure.worst_ratio:.3g} of the limit")
+            )
+        parts.append(_table(rows))
+        parts.append(f"<p class='caution'>{html.escape(e.caution)}</p>")
+    for title, uri in _sequence_figures(plan):
+        parts.append(f"<h3>{html.escape(title)}</h3><img src='{uri}' alt='{html.escape(title)}'>")
+    parts.append("<h2>Stimuli</h2>")
+    for sp in plan.holograms:
+        frames = [f for f in plan.frames if f.hologram_index == sp.hologram_index and f.lit]
+        power = frames[0].power_mw if frames else 1.0
+        names = sorted({f.stimulus for f in frames})
+        parts.append(
+            f"<h3>{html.escape(', '.join(names) or sp.name)} (hologram {sp.hologram_index})</h3>"
+        )
+        m = sp.metrics
+        rows = [
+            ("laser power of its first frame", f"{power:.4g} mW"),
+            ("efficiency (fraction of laser power on the lit target)", f"{m.efficiency:.3f}"),
+            ("uniformity", f"{m.uniformity:.3f}"),
+            ("RMS error", f"{m.rms_error:.3f}"),
+            ("speckle contrast", f"{m.speckle_contrast:.3f}"),
+        ]
+        if sp.hologram_figures is not None:
+            h, k = sp.hologram_figures, sp.mask_figures
+            rows += [
+                ("ON pixels", str(int(sp.on.sum()))),
+                ("mean ON-pixel power, hologram", f"{h.on_power_uw * power:.4g} µW"),
+                (f"mean ON-pixel power, {k.label}", f"{k.on_power_uw * power:.4g} µW"),
+                ("ON-pixel CV, hologram", f"{h.on_cv:.3f}"),
+                ("ON/OFF contrast, hologram", f"{h.on_off_contrast:.3g}"),
+            ]
+        parts.append(_table(rows))
+        for title, uri in _stimulus_figures(plan, sp, power):
+            parts.append(
+                f"<h4>{html.escape(title)}</h4><img src='{uri}' alt='{html.escape(title)}'>"
+            )
+    parts.append(f"<div class='caution'><b>Caution.</b> {html.escape(CAUTIONS)}</div>")
+    parts.append("</body></html>")
+    return "\n".join(parts)
+
+
+def write_report(plan, path: str | Path, *, force: bool = False) -> Path:
+    """Write the report atomically; refuses to overwrite without ``force``."""
+    text = render_report(plan)
+    with atomic_file(path, force=force, mode="w") as fh:
+        fh.write(text)
+    return Path(path)

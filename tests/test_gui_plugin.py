@@ -1,0 +1,364 @@
+"""GUI: the plugin's panels, readers, writer and preview in a real napari viewer (Xvfb).
+
+Small SLMs (128 px) keep every plan to a second or two.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+from stimplan.export import load_export
+from stimplan.planner import plan_sequence
+from stimplan.sequence import load_sequence
+from stimplan_napari import _readout
+from stimplan_napari._io import get_export_reader, get_sequence_reader, is_sequence_file
+from stimplan_napari._layers import LAYER_NAMES, PLAN_KEY
+
+PLUGIN = "stimplan"
+
+# Our own test scenario: the rat demo optics on a 128-pixel SLM (same field, coarser
+# sampling), two stimuli and dark pauses.
+SEQUENCE = """\
+format = "stimplan-sequence/1"
+title = "GUI check, small rat array"
+seed = 3
+
+[optics.slm]
+pixels_x = 128
+pixels_y = 128
+pitch_um = 8.0
+fill_factor = 0.93
+phase_levels = 256
+
+[optics.laser]
+wavelength_nm = 880
+power_mw = 2.0
+profile = "gaussian"
+waist_mm = 0.29
+
+[optics.relay]
+magnification = 0.2
+
+[eye]
+preset = "rat"
+
+[implant]
+preset = "rat_55um"
+
+[hologram]
+method = "mraf"
+iterations = 12
+implant_aware = true
+{limits}
+[stimuli.bars]
+kind = "grating"
+bar_width_px = 2
+
+[stimuli.dot]
+kind = "spot"
+diameter_um = 400
+
+[[steps]]
+stimulus = "bars"
+duration_ms = 200
+pulse_ms = 10
+rate_hz = 20
+power_mw = {power}
+blank_after_ms = 100
+
+[[steps]]
+stimulus = "dot"
+duration_ms = 100
+pulse_ms = 10
+rate_hz = 20
+power_mw = {power}
+repeat = 2
+blank_after_ms = 50
+"""
+
+# A protocol cap far below what the sequence delivers: the plan is "above".
+LOW_CAP = """
+[limits]
+peak_irradiance_mw_per_mm2 = 0.05
+name = "test cap"
+"""
+
+
+def _write(tmp_path, name="small.toml", *, power=1.0, limits=""):
+    p = tmp_path / name
+    p.write_text(SEQUENCE.format(power=power, limits=limits))
+    return p
+
+
+@pytest.fixture
+def warnings_seen(monkeypatch):
+    """Every napari warning the plugin shows (show_warning is patched where it is used)."""
+    seen: list[str] = []
+    monkeypatch.setattr(_readout, "show_warning", seen.append)
+    return seen
+
+
+def _dock(viewer, name):
+    _, widget = viewer.window.add_plugin_dock_widget(PLUGIN, name)
+    return widget
+
+
+# -- stimulus and hologram panel -------------------------------------------------------------
+
+
+def test_stimulus_panel_computes_layers_in_micrometres(make_napari_viewer, qtbot):
+    viewer = make_napari_viewer(show=True)
+    panel = _dock(viewer, "Stimulus and hologram")
+    panel.optics.value = "rat grating-acuity demo"
+    panel.slm_pixels.value = 128
+    panel.laser_power_mw.value = 2.0
+    panel.kind.value = "spot"
+    panel.param_widgets["diameter_um"].value = 400.0
+    panel.method.value = "mraf"
+    panel.iterations.value = 15
+    panel.compute.native.click()
+    assert panel.busy  # the work runs in a worker thread: the click returned at once
+    qtbot.waitUntil(lambda: panel.result is not None and not panel.busy, timeout=60000)
+    assert not panel.status.value.startswith("error"), panel.status.value
+
+    res = panel.result
+    names = [layer.name for layer in viewer.layers]
+    for key in ("target", "phase", "irradiance", "implant", "zero_order"):
+        assert LAYER_NAMES[key] in names
+
+    # Source: Goodman, Introduction to Fourier Optics, 3rd ed., §5.2 (a lens maps spatial
+    # frequency ν to x = λ f ν): an N-pixel SLM of pitch p gives far-field samples of pitch
+    # λ f_eff / (N p), f_eff = f_eye / M and f_eye = (µm per degree) × 180/π.
+    eye = res.system.eye
+    f_eff_mm = eye.um_per_deg * 180 / math.pi * 1e-3 / 0.2
+    pitch_um = 880e-6 * f_eff_mm / (128 * 8e-3) * 1e3
+    target = viewer.layers[LAYER_NAMES["target"]]
+    assert target.scale == pytest.approx([pitch_um, pitch_um], rel=1e-9)
+    irr = viewer.layers[LAYER_NAMES["irradiance"]]
+    assert irr.scale == pytest.approx([pitch_um / 2, pitch_um / 2], rel=1e-9)  # oversample 2
+    assert [str(u) for u in irr.units] == ["micrometer", "micrometer"]
+    # the SLM phase is in the SLM plane, at the SLM pitch, on a cyclic colormap over [0, 2π)
+    phase = viewer.layers[LAYER_NAMES["phase"]]
+    assert phase.scale == pytest.approx([8.0, 8.0])
+    assert phase.colormap.name == "twilight"
+    assert phase.contrast_limits == pytest.approx([0.0, 2 * np.pi])
+
+    # Source: Goodman, Introduction to Fourier Optics, 3rd ed., §2.1.3, Rayleigh's
+    # (Parseval's) theorem (section number from memory): the far field carries the
+    # power of the field it came from, so the layer's sum × sample area is the power
+    # the library predicts on the retina, and never more than the laser power times
+    # the ocular transmission.
+    area_mm2 = irr.scale[0] * irr.scale[1] * 1e-6
+    total_mw = float(np.sum(irr.data, dtype=np.float64)) * area_mm2
+    acc = res.prediction.account
+    assert total_mw == pytest.approx(acc.retina_mw, rel=1e-4)
+    assert total_mw <= 2.0 * eye.transmission * (1 + 1e-6)
+    assert acc.total_mw() == pytest.approx(2.0, rel=1e-4)
+    assert irr.contrast_limits == pytest.approx([0.0, float(irr.data.max())])
+
+    # the photodiodes: one polygon per pixel, coloured by the delivered power (µW), which
+    # sums the irradiance over each active area (the library's readout at 2 mW)
+    shapes = viewer.layers[LAYER_NAMES["implant"]]
+    assert shapes.nshapes == res.implant.n_pixels
+    assert np.allclose(shapes.features["power_uw"], res.pixel_power_uw)
+    # common practice: napari's y axis points down, so world coordinates are (-y, x)
+    cx, cy = res.implant.centers_um[0]
+    assert shapes.data[0].mean(axis=0) == pytest.approx([-cy, cx], abs=0.2 * res.implant.pitch_um)
+    # common practice: the unmodulated light (zero order) lands on the optical axis
+    zero = viewer.layers[LAYER_NAMES["zero_order"]]
+    assert zero.data[0] == pytest.approx([0.0, 0.0])
+
+    readout = _dock(viewer, "Exposure and efficiency")
+    assert "efficiency" in readout.figures.value
+    assert "not a safety approval" in readout.figures.value  # the cautions go with it
+    assert "not a safety approval" in readout.verdict.value
+
+    viewer.window.resize(1280, 1000)  # room for the canvas beside the two panels
+    qtbot.wait(50)
+    shot = viewer.screenshot(flash=False)
+    assert shot.ndim == 3 and np.ptp(shot[..., :3]) > 0  # not blank
+
+
+def test_stimulus_panel_uses_a_sequence_files_optics(make_napari_viewer, qtbot, tmp_path):
+    from stimplan_napari._widgets import OPTICS_FILE
+
+    path = _write(tmp_path, power=1.5)
+    viewer = make_napari_viewer()
+    panel = _dock(viewer, "Stimulus and hologram")
+    panel.optics.value = OPTICS_FILE
+    panel.optics_file.value = path
+    assert panel.laser_power_mw.value == pytest.approx(2.0)  # the file's laser power
+    panel.kind.value = "landolt"
+    panel.param_widgets["orientation"].value = "up"
+    panel.iterations.value = 5
+    panel.start()
+    qtbot.waitUntil(lambda: not panel.busy, timeout=60000)
+    assert panel.result is not None, panel.status.value
+    assert panel.result.system.slm.shape == (128, 128)  # the file's SLM
+    assert panel.result.stimulus_plan.hologram.settings.iterations == 5
+
+    # bad input: a clear message that names the field, no crash
+    panel.kind.value = "annulus"
+    panel.param_widgets["inner_diameter_um"].value = 600.0
+    panel.param_widgets["outer_diameter_um"].value = 300.0  # inner > outer
+    panel.start()
+    qtbot.waitUntil(lambda: not panel.busy, timeout=60000)
+    assert panel.status.value.startswith("error")
+    assert "annulus" in panel.status.value
+
+
+# -- sequence panel, readers, writer -------------------------------------------------------
+
+
+def test_sequence_panel_steps_through_frames(make_napari_viewer, qtbot, tmp_path, warnings_seen):
+    path = _write(tmp_path, power=1.5)
+    viewer = make_napari_viewer()
+    panel = _dock(viewer, "Sequence")
+    panel.sequence_file.value = path
+    panel.plan_button.native.click()
+    qtbot.waitUntil(lambda: panel.plan is not None and not panel.busy, timeout=60000)
+    plan = panel.plan
+    layer = viewer.layers[LAYER_NAMES["sequence"]]
+    n = len(plan.frames)
+    assert layer.data.shape[0] == n
+    assert layer.scale[1:] == pytest.approx([plan.holograms[0].prediction.grid.pitch_y_um] * 2)
+    # common practice (linear optics): each frame is its hologram's 1 mW map times the
+    # frame's laser power; dark pauses are zeros
+    for i, f in enumerate(plan.frames):
+        page = np.asarray(layer.data[i])
+        if f.lit:
+            ref = plan.holograms[f.hologram_index].prediction.irradiance_mw_per_mm2
+            assert np.allclose(page, ref * f.power_mw, rtol=1e-5)
+        else:
+            assert not page.any()
+    # common practice: the timeline of the file, by hand: bars 0-200 ms, dark 200-300 ms,
+    # then dot 300-400 ms, dark 400-450 ms, dot 450-550 ms, dark 550-600 ms
+    assert [f.start_ms for f in plan.frames] == pytest.approx([0, 200, 300, 400, 450, 550])
+    viewer.dims.set_current_step(0, 2)
+    assert panel.frame_info.value.startswith("frame 3/6: 300 ms + 100 ms")
+    assert "dot" in panel.frame_info.value
+    viewer.dims.set_current_step(0, 1)
+    assert "dark pause" in panel.frame_info.value
+    # play steps the slider with a timer at the frames' own durations (here 100x faster)
+    viewer.dims.set_current_step(0, 0)
+    panel.speed.value = 100.0
+    panel.play.native.click()
+    qtbot.waitUntil(lambda: viewer.dims.current_step[0] == n - 1, timeout=5000)
+    qtbot.waitUntil(lambda: panel.play.text == "play", timeout=5000)
+    assert warnings_seen == []  # within the limit, the beam fits the pupil
+
+    # export from the panel, read it back with the library (checksums verified)
+    panel.export_folder.value = tmp_path / "exported"
+    out = panel.export()
+    bundle = load_export(out)
+    assert bundle.grey.shape == (len(plan.holograms), 128, 128)
+    assert np.array_equal(bundle.grey[0], plan.holograms[0].hologram.grey)
+    assert len(bundle.timeline) == n
+
+
+def test_over_limit_sequence_warns_and_refuses_export(
+    make_napari_viewer, qtbot, tmp_path, warnings_seen
+):
+    path = _write(tmp_path, power=1.0, limits=LOW_CAP)
+    viewer = make_napari_viewer()
+    panel = _dock(viewer, "Sequence")
+    panel.sequence_file.value = path
+    panel.start()
+    qtbot.waitUntil(lambda: panel.plan is not None and not panel.busy, timeout=60000)
+    assert panel.plan.verdict == "above"
+    # the user is told, with the cautions, for the sequence and for the frames of each stimulus
+    assert any("sequence is above the limit" in m for m in warnings_seen)
+    assert any("frames" in m and "above the limit" in m for m in warnings_seen)
+    assert all("not a safety approval" in m for m in warnings_seen)
+    readout = _dock(viewer, "Exposure and efficiency")
+    assert "ABOVE" in readout.verdict.value
+
+    panel.export_folder.value = tmp_path / "refused"
+    assert panel.export() is None
+    assert "refused" in panel.export_status.value
+    assert not (tmp_path / "refused").exists()
+    panel.reason.value = "bench test with a power meter, no eye"
+    out = panel.export()
+    bundle = load_export(out)
+    assert bundle.manifest["acknowledgement"]["reason"] == "bench test with a power meter, no eye"
+
+
+def test_readers_and_writer(make_napari_viewer, tmp_path, warnings_seen):
+    path = _write(tmp_path)
+    other = tmp_path / "other.toml"
+    other.write_text('title = "not ours"\n[tool.x]\ny = 1\n')
+    assert get_sequence_reader(str(other)) is None  # any other TOML is left to other readers
+    assert get_sequence_reader(str(tmp_path / "missing.toml")) is None
+    assert is_sequence_file(path)
+
+    viewer = make_napari_viewer()
+    layers = viewer.open(str(path), plugin=PLUGIN)
+    seq = viewer.layers[LAYER_NAMES["sequence"]]
+    assert seq in layers
+    plan = seq.metadata[PLAN_KEY]
+    assert seq.data.shape[0] == len(plan.frames)
+    assert LAYER_NAMES["outline"] in [layer.name for layer in viewer.layers]
+    # a sequence panel opened afterwards picks up the plan the reader made
+    panel = _dock(viewer, "Sequence")
+    assert panel.plan is plan
+
+    # the writer exports the plan behind the layers; the library reads it back
+    folder = tmp_path / "via_writer"
+    written = viewer.layers.save(str(folder), selected=False, plugin=PLUGIN)
+    assert written == [str(folder)]
+    bundle = load_export(folder)
+    assert bundle.manifest["format"] == "stimplan-export/1"
+    assert bundle.grey.shape[0] == len(plan.holograms)
+    assert [r["hologram_index"] for r in bundle.timeline] == [f.hologram_index for f in plan.frames]
+
+    # the export reader: the folder or its manifest, grey levels per frame (dark = zeros)
+    assert get_export_reader(str(tmp_path)) is None
+    assert get_export_reader(str(folder / "manifest.json")) is not None
+    (grey,) = viewer.open(str(folder), plugin=PLUGIN)
+    assert grey.data.shape == (len(plan.frames), 128, 128)
+    for i, f in enumerate(plan.frames):
+        page = np.asarray(grey.data[i])
+        if f.hologram_index < 0:
+            assert not page.any()
+        else:
+            assert np.array_equal(page, bundle.grey[f.hologram_index])
+    assert grey.scale[1:] == pytest.approx([8.0, 8.0])  # SLM pitch, µm
+    assert warnings_seen == []
+
+
+def test_writer_refuses_over_limit_plan(tmp_path):
+    from stimplan.errors import ExposureLimitError
+    from stimplan_napari._io import write_export
+    from stimplan_napari._layers import plan_layers
+
+    plan = plan_sequence(load_sequence(_write(tmp_path, limits=LOW_CAP)), progress=False)
+    tuples = plan_layers(plan)
+    with pytest.raises(ExposureLimitError):
+        write_export(str(tmp_path / "out"), [(d, m, t) for d, m, t in tuples])
+    assert not (tmp_path / "out").exists()
+
+
+def test_clipped_beam_warns(tmp_path, warnings_seen):
+    # The beam at the pupil is 2 w M = 2 × 0.29 mm × 0.2 = 0.116 mm (Gaussian 1/e² diameter,
+    # Source: Siegman, Lasers (1986), ch. 17), wider than a 0.1 mm pupil.
+    text = SEQUENCE.format(power=1.0, limits="").replace(
+        'preset = "rat"', 'preset = "rat"\npupil_diameter_mm = 0.1'
+    )
+    path = tmp_path / "clipped.toml"
+    path.write_text(text)
+    reader = get_sequence_reader(str(path))
+    layers = reader(str(path))
+    assert layers
+    assert any("overfills" in m and "pupil" in m for m in warnings_seen)
+
+
+def test_preview_opens_and_closes(tmp_path, warnings_seen):
+    from stimplan.cli import main
+    from stimplan_napari.preview import preview
+
+    path = _write(tmp_path)
+    assert preview(path, close_after_load=True) == 0
+    assert main(["preview", str(path), "--close-after-load"]) == 0

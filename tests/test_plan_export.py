@@ -1,0 +1,133 @@
+"""Planning, export, read-back and the report, on a small sequence."""
+
+from __future__ import annotations
+
+import json
+
+import numpy as np
+import pytest
+
+from stimplan.errors import ExportError, ExposureLimitError, IntegrityError
+from stimplan.export import export_plan, load_export
+from stimplan.holography import predict_from_levels
+from stimplan.holography.quantize import grey_map_for
+from stimplan.planner import plan_sequence
+from stimplan.report import render_report
+from stimplan.sequence import load_sequence
+
+from .scenarios import small_sequence
+
+
+@pytest.fixture(scope="module")
+def seq_file(tmp_path_factory):
+    path = tmp_path_factory.mktemp("seq") / "small.toml"
+    path.write_text(small_sequence())
+    return path
+
+
+@pytest.fixture(scope="module")
+def plan(seq_file):
+    return plan_sequence(load_sequence(seq_file), progress=False)
+
+
+def test_plan_computes_each_distinct_hologram_once(plan):
+    # common practice: identical frames share one hologram
+    assert len(plan.holograms) == 2
+    lit = [f for f in plan.frames if f.lit]
+    assert {f.hologram_index for f in lit} == {0, 1}
+    assert any(f.stimulus is None for f in plan.frames)  # the blank pause
+
+
+def test_power_planning_round_trip_through_the_prediction(plan, seq_file):
+    # Source: linearity of the optics in laser power (Goodman, 3rd ed., §2.1 and §4.2):
+    # plan X mW/mm^2 on the ON pixels, predict anew at the planned power, read X back.
+    spec = load_sequence(seq_file)
+    frame = next(f for f in plan.frames if f.stimulus == "bars")
+    sp = plan.stimuli["bars"]
+    from dataclasses import replace
+
+    system = replace(
+        spec.system, illumination=replace(spec.system.illumination, power_mw=frame.power_mw)
+    )
+    pred = predict_from_levels(sp.hologram.levels, system, oversample=spec.oversample)
+    read = spec.implant.readout(pred.irradiance_mw_per_mm2, pred.grid)
+    on = sp.on
+    got = read.power_uw[on].sum() * 1e-3 / read.active_area_mm2[on].sum()
+    assert got == pytest.approx(1.0, rel=0.02)
+
+
+def test_export_round_trip_and_tamper_detection(plan, seq_file, tmp_path):
+    # common practice: checksums make a changed file visible; the exported grey levels
+    # reproduce the planned per-pixel powers (same optics, same quantisation)
+    out = export_plan(plan, tmp_path / "exp")
+    bundle = load_export(out)
+    man = bundle.manifest
+    assert man["seed"] == 3 and man["config"]["seed"] == 3
+    assert "estimate" in man["cautions"] and man["verdict"] == "within"
+    assert len(bundle.timeline) == len(plan.frames)
+    spec = load_sequence(seq_file)
+    lut = grey_map_for(spec.system.slm)
+    from dataclasses import replace
+
+    system = replace(spec.system, illumination=replace(spec.system.illumination, power_mw=1.0))
+    for entry, grey in zip(man["holograms"], bundle.grey, strict=True):
+        pred = predict_from_levels(lut.levels_from_grey(grey), system, oversample=spec.oversample)
+        power = spec.implant.readout(pred.irradiance_mw_per_mm2, pred.grid).power_uw
+        want = np.asarray(entry["pixel_power_uw_per_mw"])
+        on = np.asarray(entry["on_pixels"])
+        np.testing.assert_allclose(power[on], want[on], rtol=0.01)
+    # tamper: one byte of the stack
+    stack = out / "holograms.tif"
+    data = bytearray(stack.read_bytes())
+    data[-10] ^= 0xFF
+    stack.write_bytes(bytes(data))
+    with pytest.raises(IntegrityError, match="holograms.tif"):
+        load_export(out)
+
+
+def test_png_stack_and_manifest_reader(plan, tmp_path):
+    out = export_plan(plan, tmp_path / "png", stack_format="png")
+    bundle = load_export(out / "manifest.json")
+    assert bundle.grey.shape == (2, 256, 256) and bundle.grey.dtype == np.uint8
+
+
+def test_existing_folder_is_refused_without_force(plan, tmp_path):
+    out = tmp_path / "exp"
+    export_plan(plan, out)
+    with pytest.raises(ExportError, match="--force"):
+        export_plan(plan, out)
+    export_plan(plan, out, force=True)
+    assert load_export(out).verdict == "within"
+
+
+def test_interrupted_export_leaves_nothing_that_looks_complete(plan, tmp_path):
+    # common practice: write into a temporary sibling, rename at the end
+    for stage in ("stack", "timeline"):
+        with pytest.raises(RuntimeError):
+            export_plan(plan, tmp_path / "exp", fail_after=stage)
+        assert not (tmp_path / "exp").exists()
+        assert list(tmp_path.iterdir()) == []
+
+
+def test_over_limit_export_is_refused_unless_acknowledged(tmp_path):
+    # Source: REFERENCES (Wang et al. 2022 give 8 mW/mm^2 at 30 % duty as the stated safe
+    # maximum); far above it the estimate must be "above" and export must refuse.
+    path = tmp_path / "hot.toml"
+    path.write_text(small_sequence(irradiance=5000.0))
+    plan = plan_sequence(load_sequence(path), progress=False)
+    assert plan.verdict == "above"
+    with pytest.raises(ExposureLimitError):
+        export_plan(plan, tmp_path / "exp")
+    assert not (tmp_path / "exp").exists()
+    export_plan(plan, tmp_path / "exp", acknowledge_reason="bench test with a power meter, no eye")
+    ack = json.loads((tmp_path / "exp" / "manifest.json").read_text())["acknowledgement"]
+    assert ack["acknowledged_above_limit"] is True
+    assert "power meter" in ack["reason"]
+
+
+def test_report_is_self_contained_with_cautions(plan):
+    text = render_report(plan)
+    assert text.startswith("<!doctype html>")
+    assert text.count("data:image/png;base64,") >= 5
+    assert "not a safety approval" in text
+    assert "src='http" not in text and 'src="http' not in text
