@@ -99,6 +99,9 @@ case "$cmd" in
     cd "$ROOT"
     log "ruff check"
     "$VENV/bin/ruff" check stimplan plugins tests benchmarks
+    "$VENV/bin/ruff" format --check stimplan plugins tests benchmarks
+    log "npe2 validate (the napari plugin manifest)"
+    "$VENV/bin/npe2" validate stimplan --imports
     log "pytest (under Xvfb)"
     export QT_API="${QT_API:-pyqt5}"
     exec xvfb-run -a -s "-screen 0 1280x1024x24" "$PY" -m pytest "$@"
