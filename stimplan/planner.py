@@ -14,8 +14,10 @@ from __future__ import annotations
 
 import json
 import sys
+import threading
 from collections.abc import Callable
 from dataclasses import dataclass, field, replace
+from functools import cached_property
 
 import numpy as np
 
@@ -24,7 +26,9 @@ from .baseline import MaskPrediction, project_mask
 from .cautions import CAUTIONS
 from .comparison import ProjectorFigures, mask_for_implant, pixel_figures
 from .errors import ConfigError
-from .holography import Hologram, RetinalPrediction, design_hologram
+from .holography import Hologram, RetinalPrediction, design_hologram, linear_phase_ramp
+from .holography.design import display_levels
+from .holography.quantize import grey_map_for
 from .implant_target import implant_target, pixel_states
 from .metrics import PatternMetrics, pattern_metrics
 from .target import Target
@@ -134,7 +138,7 @@ class Plan:
     mask_exposure : ExposureAssessment or None
         The same timeline through the amplitude mask at the same powers.
     stimulus_exposure : dict of int to ExposureAssessment
-        Each hologram's frames alone (by hologram index).
+        Each hologram's frames alone (by hologram index); computed on first use.
     """
 
     spec: object
@@ -143,8 +147,22 @@ class Plan:
     frames: tuple[FramePlan, ...]
     exposure: xp.ExposureAssessment | None
     mask_exposure: xp.ExposureAssessment | None
-    stimulus_exposure: dict = field(default_factory=dict)
     cautions: str = CAUTIONS
+
+    @cached_property
+    def stimulus_exposure(self) -> dict[int, xp.ExposureAssessment]:
+        """Exposure of each hologram's frames on their own, by hologram index."""
+        if len(self.holograms) == 1:
+            only = self.holograms[0].hologram_index
+            return {} if self.exposure is None else {only: self.exposure}
+        wl = self.spec.system.illumination.wavelength_nm
+        out = {}
+        for sp in self.holograms:
+            own = [f for f in self.frames if f.hologram_index == sp.hologram_index]
+            a = _assess(own, self.stimuli, "hologram", wl, self.spec)
+            if a is not None:
+                out[sp.hologram_index] = a
+        return out
 
     @property
     def seed(self) -> int:
@@ -183,14 +201,56 @@ def _build_target(stim, spec, grid) -> Target:
     return Target.from_intensity(design, grid, name="image-domain")
 
 
-def _plan_stimulus(name, stim, index, spec, system, progress) -> StimulusPlan:
-    grid = system.design_grid()
+def _settings(spec):
     st = spec.ifta
     if spec.implant is not None and spec.implant_aware:
         st = replace(st, group_weighting=True)
+    return st
+
+
+def _design(stim, spec, system, progress, workers, initial_phase_rad=None, iterations=None):
+    grid = system.design_grid()
+    st = _settings(spec)
+    if iterations is not None:
+        st = replace(
+            st, iterations=iterations, quantized_iterations=min(st.quantized_iterations, iterations)
+        )
     target = _build_target(stim, spec, grid)
-    holo = design_hologram(target, system, st, offset_um=spec.offset_um, progress=progress)
-    pred = holo.predict(system, oversample=spec.oversample)
+    return design_hologram(
+        target,
+        system,
+        st,
+        offset_um=spec.offset_um,
+        initial_phase_rad=initial_phase_rad,
+        progress=progress,
+        workers=workers,
+    )
+
+
+def _translated(base: Hologram, stim, spec, system, shift_rc) -> Hologram:
+    """The base hologram moved by ``shift_rc`` design samples with a linear phase ramp."""
+    grid = system.design_grid()
+    ramp = linear_phase_ramp(grid.shape, shift_rc[0], shift_rc[1])
+    phase = np.mod(base.phase_rad + ramp, np.float32(2 * np.pi))
+    target = _build_target(stim, spec, grid)
+    rows, cols = base.offset_samples
+    if rows or cols:
+        target = target.shifted(rows, cols)
+    levels = display_levels(phase, system)
+    return replace(
+        base,
+        phase_rad=phase.astype(np.float32),
+        levels=levels,
+        grey=grey_map_for(system.slm).to_grey(levels),
+        target=target,
+        reused_from=base.target.name,
+    )
+
+
+def _evaluate(name, stim, index, spec, system, holo, workers) -> StimulusPlan:
+    """Prediction, metrics, mask baseline and implant readout of one hologram (at 1 mW)."""
+    grid = system.design_grid()
+    pred = holo.predict(system, oversample=spec.oversample, workers=workers)
     metrics = pattern_metrics(pred, holo.target)
     pg = pred.grid
     mask = spec.mask
@@ -198,9 +258,8 @@ def _plan_stimulus(name, stim, index, spec, system, progress) -> StimulusPlan:
     if spec.implant is not None:
         mask = mask_for_implant(mask, spec.implant)
         center = (spec.implant.center_x_um, spec.implant.center_y_um)
-    fine = stim.render(pg)
     mp = project_mask(
-        fine,
+        stim.render(pg),
         pg,
         mask,
         REFERENCE_POWER_MW,
@@ -232,10 +291,104 @@ def _plan_stimulus(name, stim, index, spec, system, progress) -> StimulusPlan:
     )
 
 
+def _initial_from(base: Hologram, shift_rc, grid) -> np.ndarray:
+    """A warm start: the base's designed phase without its off-axis term, moved by ``shift_rc``."""
+    rows, cols = base.offset_samples
+    ramp = linear_phase_ramp(grid.shape, shift_rc[0] - rows, shift_rc[1] - cols)
+    return np.mod(base.phase_rad + ramp, np.float32(2 * np.pi)).astype(np.float32)
+
+
+@dataclass(frozen=True)
+class _Job:
+    names: tuple[str, ...]
+    kind: str  # "fresh", "translate" or "warm"
+    base: int = -1
+    shift_rc: tuple[float, float] = (0.0, 0.0)
+
+
+def plan_jobs(
+    spec, groups: list[list[str]], system, *, reuse: bool = True, envelope_tolerance: float = 0.05
+) -> list[_Job]:
+    """How each distinct stimulus is obtained: computed, translated from another, or warm-started.
+
+    In the image domain a translated stimulus reuses a computed hologram with a
+    linear phase ramp. The pixel envelope does not move with the pattern, so the
+    source is the computed hologram whose envelope differs least over the new
+    pattern (over the implant, if there is one), and the reuse is taken only when
+    that change is at most ``envelope_tolerance``; the prediction of a reused
+    hologram is computed anew, so its figures are its own. With implant-aware
+    targets a translation is not a translation of the target (the implant stays
+    put), so the source's solution is only the starting phase (e.g. a reversed
+    checkerboard starts from its partner), with half the iterations.
+    """
+    from .reuse import envelope_change, shift_in_samples, translation_between
+
+    grid = system.design_grid()
+    aware = spec.implant is not None and spec.implant_aware
+    region = None
+    if spec.implant is not None:
+        region = spec.implant.rasterize(grid, "cell").coverage_image() > 0
+    jobs: list[_Job] = []
+    for names in groups:
+        stim = spec.stimuli[names[0]]
+        job = _Job(tuple(names), "fresh")
+        if reuse:
+            lit = stim.render(grid) > 0
+            if region is not None:
+                lit &= region
+            best = None
+            for j, other in enumerate(jobs):
+                if other.kind != "fresh":
+                    continue
+                t = translation_between(spec.stimuli[other.names[0]], stim, grid)
+                if t is None:
+                    continue
+                shift = shift_in_samples(t, grid)
+                if aware:
+                    best = (0.0, j, shift)
+                    break
+                change = envelope_change(lit, shift, system.slm.fill_factor)
+                if change <= envelope_tolerance and (best is None or change < best[0]):
+                    best = (change, j, shift)
+            if best is not None:
+                job = _Job(tuple(names), "warm" if aware else "translate", best[1], best[2])
+        jobs.append(job)
+    return jobs
+
+
+def _task_fn(job: _Job, index: int, spec, system, tick):
+    stim = spec.stimuli[job.names[0]]
+    name = job.names[0]
+
+    if job.kind == "fresh":
+
+        def run(*, workers):
+            holo = _design(stim, spec, system, tick, workers)
+            return _evaluate(name, stim, index, spec, system, holo, workers)
+
+    elif job.kind == "translate":
+
+        def run(base, *, workers):
+            holo = _translated(base.hologram, stim, spec, system, job.shift_rc)
+            return _evaluate(name, stim, index, spec, system, holo, workers)
+
+    else:
+
+        def run(base, *, workers):
+            init = _initial_from(base.hologram, job.shift_rc, system.design_grid())
+            its = max(10, spec.ifta.iterations // 2)
+            holo = _design(stim, spec, system, tick, workers, init, its)
+            return _evaluate(name, stim, index, spec, system, holo, workers)
+
+    return run
+
+
 def plan_sequence(
     spec,
     *,
     progress: bool | Callable[[str, int, int], None] = True,
+    reuse: bool = True,
+    scheduler=None,
 ) -> Plan:
     """Plan a sequence: holograms, predictions, readouts, the mask baseline and exposure.
 
@@ -246,11 +399,18 @@ def plan_sequence(
     progress : bool or callable
         ``True``: a tqdm bar on stderr; ``False``: silent; a callable is
         called as ``progress(stage, done, total)``.
+    reuse : bool
+        Reuse holograms of translated stimuli (see :func:`plan_jobs`).
+    scheduler : None, str or distributed.Client
+        Where the distinct holograms are computed (:func:`stimplan.batch.run_batch`):
+        local threads by default, ``"serial"``, or a ``dask.distributed``
+        scheduler address.
 
     Returns
     -------
     Plan
     """
+    from .batch import Task, run_batch
     from .sequence import expand_timeline
 
     frames_spec = expand_timeline(spec)
@@ -262,56 +422,61 @@ def plan_sequence(
         if fr.stimulus is not None and fr.stimulus not in needed:
             if spec.stimuli[fr.stimulus].kind != "blank":
                 needed.append(fr.stimulus)
-    # distinct stimuli -> one hologram each
     by_key: dict[str, list[str]] = {}
     for name in needed:
         by_key.setdefault(stimulus_key(spec.stimuli[name]), []).append(name)
     groups = list(by_key.values())
+    jobs = plan_jobs(spec, groups, system, reuse=reuse)
     iters = spec.ifta.iterations
-    total = max(len(groups) * iters, 1)
+    warm_iters = max(10, iters // 2)
+    total = sum({"fresh": iters, "warm": warm_iters}.get(j.kind, 0) for j in jobs) + len(jobs)
     bar = None
-    cb = None
+    cb = progress if callable(progress) else None
     if progress is True:
         from tqdm import tqdm
 
         bar = tqdm(
-            total=total, desc="holograms", unit="it", file=sys.stderr, leave=False, disable=None
+            total=total,
+            desc="holograms",
+            unit="step",
+            file=sys.stderr,
+            leave=False,
+            disable=None,
         )
-    elif callable(progress):
-        cb = progress
-    plans: dict[str, StimulusPlan] = {}
-    ordered: list[StimulusPlan] = []
+    done = [0]
+    lock = threading.Lock()
+
+    def tick(_i=None):
+        with lock:
+            done[0] += 1
+            if bar is not None:
+                bar.update(1)
+            if cb is not None:
+                cb("holograms", done[0], total)
+
+    local = scheduler is None or scheduler in ("serial", "threads", "sync")
+    it_tick = tick if local else None  # progress cannot travel to remote workers
+    tasks = [
+        Task(
+            _task_fn(job, i, spec, system, it_tick), (job.base,) if job.base >= 0 else (), job.kind
+        )
+        for i, job in enumerate(jobs)
+    ]
     try:
-        for gi, names in enumerate(groups):
-
-            def tick(i, _gi=gi):
-                if bar is not None:
-                    bar.update(1)
-                if cb is not None:
-                    cb("holograms", _gi * iters + i, total)
-
-            sp = _plan_stimulus(names[0], spec.stimuli[names[0]], gi, spec, system, tick)
-            ordered.append(sp)
-            for n in names:
-                plans[n] = sp
+        results = run_batch(tasks, scheduler=scheduler, on_done=tick)
     finally:
         if bar is not None:
             bar.close()
-
+    plans: dict[str, StimulusPlan] = {}
+    for job, sp in zip(jobs, results, strict=True):
+        for n in job.names:
+            plans[n] = sp
+    ordered = list(results)
     frames = tuple(_resolve_frame(fr, spec, plans) for fr in frames_spec)
     wl = spec.system.illumination.wavelength_nm
     exposure = _assess(frames, plans, "hologram", wl, spec)
     mask_exposure = _assess(frames, plans, "mask", wl, spec)
-    per_stimulus = {}
-    if len(ordered) > 1:
-        for sp in ordered:
-            own = [f for f in frames if f.hologram_index == sp.hologram_index]
-            a = _assess(own, plans, "hologram", wl, spec)
-            if a is not None:
-                per_stimulus[sp.hologram_index] = a
-    elif ordered and exposure is not None:
-        per_stimulus[ordered[0].hologram_index] = exposure
-    return Plan(spec, plans, tuple(ordered), frames, exposure, mask_exposure, per_stimulus)
+    return Plan(spec, plans, tuple(ordered), frames, exposure, mask_exposure)
 
 
 def _resolve_frame(fr, spec, plans) -> FramePlan:

@@ -18,6 +18,7 @@ import numba as nb
 import numpy as np
 
 _OPTS = {"parallel": True, "fastmath": True, "cache": True, "nogil": True}
+_SERIAL = {"parallel": False, "fastmath": True, "cache": True, "nogil": True}
 
 
 @nb.njit(**_OPTS)
@@ -152,3 +153,24 @@ def far_group_weighted(f, t, gw, groups, free, mix):  # pragma: no cover - compi
                 f[i] = mix * wi * ti
         else:
             f[i] = 0
+
+
+class _Set:
+    """One family of compiled kernels (parallel or single-threaded)."""
+
+    def __init__(self, opts: dict) -> None:
+        self.slm_constraint = nb.njit(**opts)(slm_constraint.py_func)
+        self.slm_constraint_quantized = nb.njit(**opts)(slm_constraint_quantized.py_func)
+        self.far_gs = nb.njit(**opts)(far_gs.py_func)
+        self.far_mraf = nb.njit(**opts)(far_mraf.py_func)
+        self.far_wgs = nb.njit(**opts)(far_wgs.py_func)
+        self.far_group_weighted = nb.njit(**opts)(far_group_weighted.py_func)
+        self.group_power = group_power
+
+
+#: Kernels that use numba's thread pool (one hologram at a time, all cores).
+PARALLEL = _Set(_OPTS)
+#: Single-threaded kernels, for batches that run several holograms at once in
+#: threads (no nested thread pools, and no reliance on a thread-safe numba
+#: threading layer).
+SERIAL = _Set(_SERIAL)

@@ -77,6 +77,10 @@ class Hologram:
         Off-axis shift, design samples ``(rows, cols)``.
     lit_fraction_history : ndarray
         Design-grid efficiency per iteration.
+    group_weights : ndarray or None
+        Final pixel-domain weights.
+    reused_from : str or None
+        Name of the target whose hologram this one translates (no IFTA of its own).
     """
 
     phase_rad: np.ndarray
@@ -87,6 +91,7 @@ class Hologram:
     offset_samples: tuple[int, int]
     lit_fraction_history: np.ndarray
     group_weights: np.ndarray | None = None
+    reused_from: str | None = None
 
     def displayed_phase_rad(self, lut: GreyLevelMap) -> np.ndarray:
         """Realised phase of the displayed levels, radians."""

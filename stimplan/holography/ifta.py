@@ -32,7 +32,7 @@ import scipy.fft as sfft
 from .. import _validate as v
 from ..errors import ConfigError
 from ..target import Target
-from . import _kernels as K
+from . import _kernels as _K
 
 __all__ = ["IftaSettings", "IftaResult", "run_ifta", "METHODS"]
 
@@ -165,7 +165,8 @@ def run_ifta(
     progress : callable, optional
         Called with the number of iterations done, after each iteration.
     workers : int
-        FFT threads.
+        FFT threads; ``1`` also selects single-threaded element-wise kernels
+        (for batches that run several holograms at once).
 
     Returns
     -------
@@ -177,6 +178,7 @@ def run_ifta(
        al. (2007); [4] Pasienski & DeMarco (2008).
     """
     st = settings or IftaSettings()
+    K = _K.SERIAL if workers == 1 else _K.PARALLEL
     if not isinstance(target, Target):
         raise ConfigError("target", type(target).__name__, "a stimplan Target")
     shape = target.shape
