@@ -12,8 +12,12 @@ References
 
 from __future__ import annotations
 
+import copy
 import json
+import os
+import pickle
 import sys
+import tempfile
 import threading
 from collections.abc import Callable
 from dataclasses import dataclass, field, replace
@@ -22,11 +26,11 @@ from functools import cached_property
 import numpy as np
 
 from . import exposure as xp
-from .baseline import MaskPrediction, project_mask
+from .baseline import project_mask
 from .cautions import CAUTIONS
 from .comparison import ProjectorFigures, mask_for_implant, pixel_figures
 from .errors import ConfigError
-from .holography import Hologram, RetinalPrediction, design_hologram, linear_phase_ramp
+from .holography import Hologram, design_hologram, linear_phase_ramp
 from .holography.design import display_levels
 from .holography.quantize import grey_map_for
 from .implant_target import implant_target, pixel_states
@@ -36,6 +40,11 @@ from .target import Target
 __all__ = ["StimulusPlan", "FramePlan", "Plan", "plan_sequence", "stimulus_key"]
 
 REFERENCE_POWER_MW = 1.0
+#: Above this estimate of the per-hologram arrays, ``store="auto"`` spools them to disk.
+MEMORY_BUDGET_MB = 1024.0
+#: Bytes per SLM pixel that one hologram's parts take in memory (phase, levels, grey,
+#: target and regions on the design grid; prediction and mask maps on the 2x grid).
+BYTES_PER_SLM_PIXEL = 48
 
 
 def stimulus_key(stimulus) -> str:
@@ -43,7 +52,34 @@ def stimulus_key(stimulus) -> str:
     return json.dumps(stimulus.to_dict(), sort_keys=True, default=str)
 
 
-@dataclass(frozen=True, eq=False)
+class Spooled:
+    """A large result kept in a file of the plan's spool folder, loaded on use."""
+
+    __slots__ = ("path",)
+
+    def __init__(self, path: str) -> None:
+        self.path = path
+
+    @classmethod
+    def write(cls, obj, folder: str, name: str) -> Spooled:
+        path = os.path.join(folder, name)
+        with open(path, "wb") as fh:
+            pickle.dump(obj, fh, protocol=pickle.HIGHEST_PROTOCOL)
+        return cls(path)
+
+    def load(self):
+        # the file was written by this process's plan into its own temporary folder
+        with open(self.path, "rb") as fh:
+            return pickle.load(fh)
+
+
+def _part(value):
+    return value.load() if isinstance(value, Spooled) else value
+
+
+_LARGE = ("target", "hologram", "prediction", "mask_prediction")
+
+
 class StimulusPlan:
     """One distinct stimulus: its hologram and what it gives per mW of laser power.
 
@@ -66,19 +102,68 @@ class StimulusPlan:
         Per-pixel figures at 1 mW (None without an implant).
     readout : PixelReadout or None
         Hologram readout at 1 mW.
+
+    Notes
+    -----
+    In a plan made with ``store="disk"`` the four large parts (target,
+    hologram, prediction, mask prediction) live in files of the plan's spool
+    folder and are read back on each use, so a long sequence holds only the
+    small figures in memory.
     """
 
-    name: str
-    hologram_index: int
-    target: Target
-    hologram: Hologram
-    prediction: RetinalPrediction
-    metrics: PatternMetrics
-    mask_prediction: MaskPrediction
-    on: np.ndarray | None = None
-    hologram_figures: ProjectorFigures | None = None
-    mask_figures: ProjectorFigures | None = None
-    readout: object | None = None
+    def __init__(
+        self,
+        name: str,
+        hologram_index: int,
+        target,
+        hologram,
+        prediction,
+        metrics: PatternMetrics,
+        mask_prediction,
+        on: np.ndarray | None = None,
+        hologram_figures: ProjectorFigures | None = None,
+        mask_figures: ProjectorFigures | None = None,
+        readout: object | None = None,
+    ) -> None:
+        self.name = name
+        self.hologram_index = hologram_index
+        self._parts = {
+            "target": target,
+            "hologram": hologram,
+            "prediction": prediction,
+            "mask_prediction": mask_prediction,
+        }
+        self.metrics = metrics
+        self.on = on
+        self.hologram_figures = hologram_figures
+        self.mask_figures = mask_figures
+        self.readout = readout
+
+    target = property(lambda self: _part(self._parts["target"]), doc="The Target.")
+    hologram = property(lambda self: _part(self._parts["hologram"]), doc="The Hologram.")
+    prediction = property(
+        lambda self: _part(self._parts["prediction"]), doc="RetinalPrediction at 1 mW."
+    )
+    mask_prediction = property(
+        lambda self: _part(self._parts["mask_prediction"]), doc="MaskPrediction at 1 mW."
+    )
+
+    @property
+    def spooled(self) -> bool:
+        return any(isinstance(v, Spooled) for v in self._parts.values())
+
+    def spool_to(self, folder: str) -> StimulusPlan:
+        """This plan with its large parts written to files in ``folder``."""
+        out = copy.copy(self)
+        out._parts = {
+            k: (
+                v
+                if isinstance(v, Spooled)
+                else Spooled.write(v, folder, f"{self.hologram_index:05d}-{k}.pkl")
+            )
+            for k, v in self._parts.items()
+        }
+        return out
 
     def on_irradiance_per_mw(self, basis: str = "mean") -> float:
         """ON-pixel retinal irradiance per mW of laser power ("mean" or "min")."""
@@ -148,6 +233,7 @@ class Plan:
     exposure: xp.ExposureAssessment | None
     mask_exposure: xp.ExposureAssessment | None
     cautions: str = CAUTIONS
+    spool: object = field(default=None, repr=False)
 
     @cached_property
     def stimulus_exposure(self) -> dict[int, xp.ExposureAssessment]:
@@ -356,21 +442,26 @@ def plan_jobs(
     return jobs
 
 
-def _task_fn(job: _Job, index: int, spec, system, tick):
+def _task_fn(job: _Job, index: int, spec, system, tick, spool: str | None = None):
     stim = spec.stimuli[job.names[0]]
     name = job.names[0]
+    evaluate = _evaluate
+    if spool is not None:
+
+        def evaluate(*args):
+            return _evaluate(*args).spool_to(spool)
 
     if job.kind == "fresh":
 
         def run(*, workers):
             holo = _design(stim, spec, system, tick, workers)
-            return _evaluate(name, stim, index, spec, system, holo, workers)
+            return evaluate(name, stim, index, spec, system, holo, workers)
 
     elif job.kind == "translate":
 
         def run(base, *, workers):
             holo = _translated(base.hologram, stim, spec, system, job.shift_rc)
-            return _evaluate(name, stim, index, spec, system, holo, workers)
+            return evaluate(name, stim, index, spec, system, holo, workers)
 
     else:
 
@@ -378,7 +469,7 @@ def _task_fn(job: _Job, index: int, spec, system, tick):
             init = _initial_from(base.hologram, job.shift_rc, system.design_grid())
             its = max(10, spec.ifta.iterations // 2)
             holo = _design(stim, spec, system, tick, workers, init, its)
-            return _evaluate(name, stim, index, spec, system, holo, workers)
+            return evaluate(name, stim, index, spec, system, holo, workers)
 
     return run
 
@@ -389,6 +480,7 @@ def plan_sequence(
     progress: bool | Callable[[str, int, int], None] = True,
     reuse: bool = True,
     scheduler=None,
+    store: str = "auto",
 ) -> Plan:
     """Plan a sequence: holograms, predictions, readouts, the mask baseline and exposure.
 
@@ -405,6 +497,11 @@ def plan_sequence(
         Where the distinct holograms are computed (:func:`stimplan.batch.run_batch`):
         local threads by default, ``"serial"``, or a ``dask.distributed``
         scheduler address.
+    store : {"auto", "memory", "disk"}
+        Where the large per-hologram arrays live: in memory, or in a spool
+        folder of the plan (read back on use), so that a long sequence of
+        distinct holograms needs the memory of a few. ``"auto"`` chooses disk
+        when the holograms would take more than :data:`MEMORY_BUDGET_MB`.
 
     Returns
     -------
@@ -456,9 +553,19 @@ def plan_sequence(
 
     local = scheduler is None or scheduler in ("serial", "threads", "sync")
     it_tick = tick if local else None  # progress cannot travel to remote workers
+    if store not in ("auto", "memory", "disk"):
+        raise ConfigError("store", store, "one of 'auto', 'memory', 'disk'")
+    n_slm = system.slm.pixels_x * system.slm.pixels_y
+    per_hologram_mb = n_slm * BYTES_PER_SLM_PIXEL * spec.oversample**2 / 4 / 2**20
+    if store == "auto":
+        store = "disk" if len(jobs) * per_hologram_mb > MEMORY_BUDGET_MB else "memory"
+    spool_dir = tempfile.TemporaryDirectory(prefix="stimplan-spool-") if store == "disk" else None
+    spool = None if spool_dir is None else spool_dir.name
     tasks = [
         Task(
-            _task_fn(job, i, spec, system, it_tick), (job.base,) if job.base >= 0 else (), job.kind
+            _task_fn(job, i, spec, system, it_tick, spool),
+            (job.base,) if job.base >= 0 else (),
+            job.kind,
         )
         for i, job in enumerate(jobs)
     ]
@@ -476,7 +583,7 @@ def plan_sequence(
     wl = spec.system.illumination.wavelength_nm
     exposure = _assess(frames, plans, "hologram", wl, spec)
     mask_exposure = _assess(frames, plans, "mask", wl, spec)
-    return Plan(spec, plans, tuple(ordered), frames, exposure, mask_exposure)
+    return Plan(spec, plans, tuple(ordered), frames, exposure, mask_exposure, spool=spool_dir)
 
 
 def _resolve_frame(fr, spec, plans) -> FramePlan:
