@@ -60,6 +60,7 @@ mW/mm^2, retinal power mW, retinal energy mJ and dose mJ/mm^2.
 from __future__ import annotations
 
 import math
+import weakref
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass, field, replace
 from typing import Any
@@ -178,6 +179,10 @@ _WINDOW_STEP = 1.02
 # counted as pulses for rules 1 and 3 (their energy still counts in rule 2).
 _COUNT_THRESHOLD = 1e-4
 _TIME_TOL_S = 1e-9
+# assess_sequence: per-angle accumulators held at once (more angles take more passes), and
+# the samples per chunk of its elementwise accumulations.
+_ANGLE_BLOCK_BYTES = 512 * 2**20
+_CHUNK_SAMPLES = 1 << 16
 
 
 # --------------------------------------------------------------------------
@@ -1470,14 +1475,17 @@ def _disc_kernel(
 
 
 class _DiscIntegrator:
-    """Disc power maps of one irradiance map, reusing its FFT across diameters."""
+    """Disc power maps on one grid, zero-padded for the largest disc.
 
-    def __init__(self, irradiance: np.ndarray, grid: RetinalGrid, max_diameter_um: float):
-        self.map = np.ascontiguousarray(irradiance, dtype=np.float32)
+    The padded FFT shape is fixed by the largest diameter, so one spectrum of a
+    map (:meth:`spectrum`) serves every diameter. The spectra of the disc
+    kernels are cached per diameter until :meth:`forget`.
+    """
+
+    def __init__(self, grid: RetinalGrid, max_diameter_um: float):
         self.grid = grid
-        self._shape: tuple[int, int] | None = None
-        self._spectrum: np.ndarray | None = None
-        self._plan(max_diameter_um)
+        self.shape = self._padded_shape(max_diameter_um)
+        self._kernels: dict[float, tuple[np.ndarray, tuple[int, int]]] = {}
 
     def _kernel_half(self, diameter_um: float) -> tuple[int, int]:
         g = self.grid
@@ -1487,32 +1495,66 @@ class _DiscIntegrator:
             min(int(math.ceil(r / g.pitch_x_um + 0.5)), g.cols - 1),
         )
 
-    def _plan(self, diameter_um: float) -> None:
+    def _padded_shape(self, diameter_um: float) -> tuple[int, int]:
         hy, hx = self._kernel_half(diameter_um)
         rows, cols = self.grid.shape
-        shape = (
+        return (
             sfft.next_fast_len(rows + 2 * hy, real=True),
             sfft.next_fast_len(cols + 2 * hx, real=True),
         )
-        if self._shape is None or shape[0] > self._shape[0] or shape[1] > self._shape[1]:
-            self._shape = shape
-            self._spectrum = None
 
-    def power_map_mw(self, diameter_um: float) -> np.ndarray:
+    def is_point(self, diameter_um: float) -> bool:
+        """A disc that fits in one sample is integrated as a point (no FFT)."""
+        return diameter_um <= min(self.grid.pitch_x_um, self.grid.pitch_y_um)
+
+    @property
+    def spectrum_nbytes(self) -> int:
+        """Bytes of one spectrum (complex64, real-input half plane)."""
+        return self.shape[0] * (self.shape[1] // 2 + 1) * 8
+
+    def spectrum(self, irradiance: np.ndarray) -> np.ndarray:
+        """Spectrum of a map on the padded shape, for :meth:`power_map_mw`."""
+        return sfft.rfft2(irradiance, s=self.shape, workers=-1)
+
+    def forget(self) -> None:
+        """Drop the cached kernel spectra."""
+        self._kernels.clear()
+
+    def _kernel_spectrum(self, diameter_um: float) -> tuple[np.ndarray, tuple[int, int]]:
+        hit = self._kernels.get(diameter_um)
+        if hit is None:
+            g = self.grid
+            hy, hx = self._kernel_half(diameter_um)
+            kernel = _disc_kernel(diameter_um, g.pitch_x_um, g.pitch_y_um, hy, hx)
+            hit = (sfft.rfft2(kernel, s=self.shape, workers=-1), kernel.shape)
+            self._kernels[diameter_um] = hit
+        return hit
+
+    def power_map_mw(
+        self,
+        irradiance: np.ndarray | None,
+        diameter_um: float,
+        spectrum: np.ndarray | None = None,
+    ) -> np.ndarray:
+        """Disc power map (float32 on the grid) of a map, given as ``irradiance``
+        or by its :meth:`spectrum` (which saves the FFT; a disc that is a point
+        needs the map itself)."""
         g = self.grid
-        if diameter_um <= min(g.pitch_x_um, g.pitch_y_um):
+        if self.is_point(diameter_um):
             # A disc that fits in one sample is a point: the sample's irradiance times its area.
-            return self.map * np.float32(math.pi * (diameter_um * 1e-3) ** 2 / 4.0)
-        self._plan(diameter_um)
-        hy, hx = self._kernel_half(diameter_um)
-        kernel = _disc_kernel(diameter_um, g.pitch_x_um, g.pitch_y_um, hy, hx)
-        assert self._shape is not None
-        if self._spectrum is None:
-            self._spectrum = sfft.rfft2(self.map, s=self._shape, workers=-1)
-        spec = sfft.rfft2(kernel, s=self._shape, workers=-1)
-        full = sfft.irfft2(self._spectrum * spec, s=self._shape, workers=-1)
-        kh, kw = kernel.shape
+            assert irradiance is not None
+            return irradiance * np.float32(math.pi * (diameter_um * 1e-3) ** 2 / 4.0)
+        need = self._padded_shape(diameter_um)
+        if need[0] > self.shape[0] or need[1] > self.shape[1]:
+            self.shape = need
+            self._kernels.clear()
+        if spectrum is None or spectrum.shape != (self.shape[0], self.shape[1] // 2 + 1):
+            assert irradiance is not None
+            spectrum = self.spectrum(irradiance)
+        kspec, (kh, kw) = self._kernel_spectrum(diameter_um)
+        full = sfft.irfft2(spectrum * kspec, s=self.shape, workers=-1)
         out = np.array(full[kh // 2 : kh // 2 + g.rows, kw // 2 : kw // 2 + g.cols])
+        del full
         # Float32 FFT round-off: values below 1e-6 of the largest are set to zero, so
         # that a frame lit elsewhere adds no spurious pulses at a location.
         out[out < 1e-6 * float(out.max())] = 0.0
@@ -1553,7 +1595,7 @@ def disc_power_map(irradiance_mw_per_mm2: Any, grid: RetinalGrid, diameter_um: f
     grid = _check_grid(grid)
     irr = _check_map(irradiance_mw_per_mm2, grid, "irradiance_mw_per_mm2")
     d = v.number("diameter_um", diameter_um, lo=0.0, lo_open=True)
-    return _DiscIntegrator(irr, grid, d).power_map_mw(d)
+    return _DiscIntegrator(grid, d).power_map_mw(np.ascontiguousarray(irr), d)
 
 
 def max_disc_power(
@@ -1613,17 +1655,74 @@ class Frame:
 
     Parameters
     ----------
-    irradiance_mw_per_mm2 : ndarray
-        Retinal irradiance at the frame's laser power, on the shared grid.
+    irradiance_mw_per_mm2 : ndarray or callable
+        Retinal irradiance at the frame's laser power, on the shared grid; or a
+        zero-argument callable that returns it (a *lazy* frame: a function that
+        reads the map from disk or scales a shared base map). A lazy map is
+        obtained only when it is needed and is not kept: it may be called
+        several times, and must return the same values each time.
     pulses : sequence of Pulse
         When the frame is shown (times from the start of the sequence).
     label : str
         Name shown in reports.
+    key : str, optional
+        Frames with the same key show the same map: it is obtained from the
+        first frame with that key and treated as one map (the others' maps are
+        not read). Without a key, frames whose ``irradiance_mw_per_mm2`` is the
+        same array or the same callable, or whose callables return the same
+        array object, are treated as one map.
+
+    Notes
+    -----
+    Use :meth:`load_irradiance_mw_per_mm2` to obtain the array of either kind.
     """
 
-    irradiance_mw_per_mm2: np.ndarray
+    irradiance_mw_per_mm2: np.ndarray | Callable[[], Any]
     pulses: tuple[Pulse, ...]
     label: str = ""
+    key: str | None = None
+
+    @property
+    def is_lazy(self) -> bool:
+        """True if the map is obtained from a callable."""
+        return callable(self.irradiance_mw_per_mm2)
+
+    def load_irradiance_mw_per_mm2(self, grid: RetinalGrid | None = None) -> np.ndarray:
+        """The frame's map as a checked float32 array (calls a lazy frame's callable).
+
+        Parameters
+        ----------
+        grid : RetinalGrid, optional
+            If given, the map must have its shape.
+
+        Returns
+        -------
+        ndarray
+            Float32, finite, >= 0. Not cached: a lazy frame's callable is
+            called on every use.
+        """
+        shape = None if grid is None else _check_grid(grid).shape
+        return _load_map(self.irradiance_mw_per_mm2, shape, "irradiance_mw_per_mm2")
+
+
+def _call_map(source: Callable[[], Any], field: str) -> Any:
+    try:
+        return source()
+    except ConfigError:
+        raise
+    except Exception as exc:
+        raise ConfigError(
+            field,
+            source,
+            "an irradiance map (mW/mm^2) or a zero-argument callable returning one",
+            f"the callable raised {type(exc).__name__}: {exc}",
+        ) from exc
+
+
+def _load_map(source: Any, shape: tuple[int, int] | None, field: str) -> np.ndarray:
+    value = _call_map(source, field) if callable(source) else source
+    ndim = 2 if shape is None else None
+    return v.finite_array(field, value, shape=shape, ndim=ndim, lo=0.0, dtype=np.float32)
 
 
 @dataclass(frozen=True)
@@ -1846,6 +1945,7 @@ class ExposureAssessment:
 
 
 def _as_frames(frames: Any, grid: RetinalGrid) -> list[Frame]:
+    """Frames with checked pulses, labels and keys; eager maps are checked, lazy ones not read."""
     try:
         items = list(frames)
     except TypeError:
@@ -1854,8 +1954,9 @@ def _as_frames(frames: Any, grid: RetinalGrid) -> list[Frame]:
         raise ConfigError("frames", [], "at least one frame")
     out = []
     for k, f in enumerate(items):
+        key = None
         if isinstance(f, Frame):
-            irr, pulses, label = f.irradiance_mw_per_mm2, f.pulses, f.label
+            irr, pulses, label, key = f.irradiance_mw_per_mm2, f.pulses, f.label, f.key
         else:
             try:
                 parts = tuple(f)
@@ -1865,9 +1966,259 @@ def _as_frames(frames: Any, grid: RetinalGrid) -> list[Frame]:
                 raise ConfigError(f"frames[{k}]", f, "a Frame or (irradiance, pulses[, label])")
             irr, pulses = parts[0], parts[1]
             label = parts[2] if len(parts) == 3 else ""
-        arr = _check_map(irr, grid, f"frames[{k}].irradiance_mw_per_mm2")
-        out.append(Frame(arr, _as_pulses(pulses, f"frames[{k}].pulses"), str(label)))
+        if key is not None and not isinstance(key, str):
+            raise ConfigError(f"frames[{k}].key", key, "a string or None")
+        if not callable(irr):
+            # Checked now, as before; the checked copy (if any) is not kept.
+            _check_map(irr, grid, f"frames[{k}].irradiance_mw_per_mm2")
+        out.append(Frame(irr, _as_pulses(pulses, f"frames[{k}].pulses"), str(label), key))
     return out
+
+
+@dataclass
+class _MapGroup:
+    """Frames that show one map; the map is read from the first one's source."""
+
+    source: Any
+    field: str
+    frames: list[int]
+
+
+def _map_groups(items: Sequence[Frame]) -> list[_MapGroup]:
+    """Group frames by map: same key, same array, same callable or same returned array.
+
+    A lazy frame without a key whose callable was not seen before is called once
+    here to learn which array it returns; the array is not kept (a weak
+    reference recognises it if another frame's callable returns it while it is
+    alive elsewhere, e.g. a shared base map).
+    """
+    groups: list[_MapGroup] = []
+    by_key: dict[str, int] = {}
+    by_callable: dict[int, int] = {}
+    by_object: dict[int, tuple[Any, int]] = {}
+
+    def known(obj: Any) -> int | None:
+        hit = by_object.get(id(obj))
+        if hit is None:
+            return None
+        ref, gi = hit
+        target = ref() if isinstance(ref, weakref.ref) else ref
+        return gi if target is obj else None
+
+    def new_group(k: int, source: Any) -> int:
+        groups.append(_MapGroup(source, f"frames[{k}].irradiance_mw_per_mm2", []))
+        return len(groups) - 1
+
+    for k, f in enumerate(items):
+        src = f.irradiance_mw_per_mm2
+        if f.key is not None:
+            gi = by_key.get(f.key)
+            if gi is None:
+                gi = by_key[f.key] = new_group(k, src)
+        elif not callable(src):
+            gi = known(src)
+            if gi is None:
+                gi = new_group(k, src)
+                by_object[id(src)] = (src, gi)  # alive: ``items`` holds it
+        else:
+            gi = by_callable.get(id(src))  # alive: ``items`` holds it
+            if gi is None:
+                obj = _call_map(src, f"frames[{k}].irradiance_mw_per_mm2")
+                gi = known(obj)
+                if gi is None:
+                    gi = new_group(k, src)
+                    try:
+                        by_object[id(obj)] = (weakref.ref(obj), gi)
+                    except TypeError:
+                        pass  # not weak-referenceable: it cannot be recognised again
+                by_callable[id(src)] = gi
+                del obj
+        groups[gi].frames.append(k)
+    return groups
+
+
+def _add_product(acc: np.ndarray, values: np.ndarray, factor: Any) -> None:
+    """``acc += values * factor`` (float64) in row chunks, without a full-size temporary."""
+    f = np.float64(factor)
+    step = max(1, _CHUNK_SAMPLES // acc.shape[1])
+    for i in range(0, acc.shape[0], step):
+        acc[i : i + step] += values[i : i + step] * f
+
+
+def _max_product(acc: np.ndarray, values: np.ndarray, factor: Any) -> None:
+    """``acc = maximum(acc, values * factor)`` (float64) in row chunks."""
+    f = np.float64(factor)
+    step = max(1, _CHUNK_SAMPLES // acc.shape[1])
+    for i in range(0, acc.shape[0], step):
+        np.maximum(acc[i : i + step], values[i : i + step] * f, out=acc[i : i + step])
+
+
+@dataclass
+class _AngleMaps:
+    """What the rules need of one acceptance angle: the largest disc power of any
+    frame, the evaluation locations and, per location, the disc power of each map."""
+
+    max_power_mw: float
+    locations: list[tuple[int, int]]
+    power_at: np.ndarray  # (location, map group), float32
+
+
+class _MapSweep:
+    """The maps of a sequence, visited one at a time.
+
+    Holds the dose and peak maps (built on the first pass), the current map and
+    its spectrum, and the per-angle accumulators of one block of angles.
+    """
+
+    def __init__(
+        self,
+        groups: list[_MapGroup],
+        grid: RetinalGrid,
+        weight_s: np.ndarray,
+        max_scale: np.ndarray,
+        overlap: bool,
+        max_diameter_um: float,
+    ):
+        self.groups, self.grid = groups, grid
+        self.weight_s, self.max_scale, self.overlap = weight_s, max_scale, overlap
+        self.integ = _DiscIntegrator(grid, max_diameter_um)
+        self.dose = np.zeros(grid.shape, dtype=np.float64)
+        self.peak = np.zeros(grid.shape, dtype=np.float64)
+        self.lit: list[int] = []  # groups with light, in order (known after the first pass)
+        self.fixed: set[tuple[int, int]] = set()
+        self._first = True
+        self._current: tuple[int, np.ndarray | None, np.ndarray | None] | None = None
+
+    def _lit_frames(self, gi: int) -> list[int]:
+        return [k for k in self.groups[gi].frames if self.max_scale[k] > 0]
+
+    def _get(
+        self, gi: int, spectrum: bool, irradiance: bool = True
+    ) -> tuple[np.ndarray | None, np.ndarray | None]:
+        """The map of group ``gi`` and/or its spectrum, reusing the current ones if they are it.
+
+        The map is read only if it, or a spectrum not held, is needed; it is
+        not kept unless ``irradiance``.
+        """
+        cur = self._current
+        irr, spec = (cur[1], cur[2]) if cur is not None and cur[0] == gi else (None, None)
+        self._current = cur = None  # free the previous map before reading the next
+        if irr is None and (irradiance or (spectrum and spec is None)):
+            g = self.groups[gi]
+            irr = np.ascontiguousarray(_load_map(g.source, self.grid.shape, g.field))
+        if spectrum and spec is None:
+            spec = self.integ.spectrum(irr)
+        if not irradiance:
+            irr = None
+        self._current = (gi, irr, spec)
+        return irr, spec
+
+    def _accumulate(self, gi: int, irr: Any) -> bool:
+        """Add the frames of group ``gi`` to the dose and peak maps; True if it is lit."""
+        for k in self.groups[gi].frames:
+            if self.weight_s[k] > 0:
+                _add_product(self.dose, irr, self.weight_s[k])
+            if self.max_scale[k] > 0:
+                if self.overlap:
+                    _add_product(self.peak, irr, self.max_scale[k])
+                else:
+                    _max_product(self.peak, irr, self.max_scale[k])
+        return bool(self._lit_frames(gi)) and bool(np.any(irr))
+
+    def block(self, diameters_um: Sequence[float]) -> list[_AngleMaps]:
+        """Two passes over the maps for a block of angles.
+
+        Pass 1 computes each lit map's disc-power maps one at a time, records
+        their maxima and accumulates the disc-energy maps. After the last map's
+        contribution the evaluation locations of an angle are final, so the last
+        map is sampled there at once. Pass 2 recomputes the other maps'
+        disc-power maps and samples them, in reverse order so that the next
+        block starts with the map (and spectrum) still held.
+        """
+        nb = len(diameters_um)
+        need_spec = not all(self.integ.is_point(d) for d in diameters_um)
+        need_irr = any(self.integ.is_point(d) for d in diameters_um)
+        energy: list[np.ndarray | None] = [
+            np.zeros(self.grid.shape, dtype=np.float64) for _ in range(nb)
+        ]
+        max_power = [0.0] * nb
+        peaks: list[set[tuple[int, int]]] = [set() for _ in range(nb)]
+        out: list[_AngleMaps | None] = [None] * nb
+        where: list[tuple[np.ndarray, ...]] = [()] * nb
+        first = self._first
+        order = range(len(self.groups)) if first else self.lit
+        last = order[-1] if len(order) else -1
+        done = -1  # the group sampled in pass 1
+
+        def finish(j: int) -> None:
+            e = energy[j]
+            locs = set(self.fixed) | peaks[j]
+            if self.lit:
+                locs.add(_peak_location(e))
+            energy[j] = None
+            ordered = sorted(locs)
+            table = np.zeros((len(ordered), len(self.groups)), dtype=np.float32)
+            out[j] = _AngleMaps(float(max_power[j]), ordered, table)
+            where[j] = tuple(np.array(ordered, dtype=np.intp).T)
+
+        for gi in order:
+            if first:
+                irr, _ = self._get(gi, False)
+                is_lit = self._accumulate(gi, irr)
+                if gi == last:
+                    self.fixed = {_peak_location(self.dose), _peak_location(self.peak)}
+                if not is_lit:
+                    continue
+                self.lit.append(gi)
+            irr, spec = self._get(gi, need_spec, need_irr)
+            lit_frames = self._lit_frames(gi)
+            for j, d in enumerate(diameters_um):
+                dm = self.integ.power_map_mw(irr, d, spec)
+                row, col = _peak_location(dm)
+                peaks[j].add((row, col))
+                top = float(dm[row, col])
+                for k in lit_frames:
+                    max_power[j] = max(max_power[j], top * self.max_scale[k])
+                    _add_product(energy[j], dm, self.weight_s[k])
+                if gi == last:
+                    finish(j)
+                    out[j].power_at[:, gi] = dm[where[j]]
+                    done = gi
+                del dm
+        self._first = False
+        for j in range(nb):
+            if out[j] is None:  # the last group is unlit (first pass), or nothing is lit
+                finish(j)
+        for gi in reversed(self.lit):
+            if gi == done:
+                continue
+            irr, spec = self._get(gi, need_spec, need_irr)
+            for j, d in enumerate(diameters_um):
+                dm = self.integ.power_map_mw(irr, d, spec)
+                out[j].power_at[:, gi] = dm[where[j]]
+                del dm
+        self.integ.forget()
+        return out  # type: ignore[return-value]
+
+    def blocks(self, diameters_um: Sequence[float]) -> list[list[int]]:
+        """Angles (indices) in blocks whose accumulators fit in :data:`_ANGLE_BLOCK_BYTES`."""
+        n = self.grid.rows * self.grid.cols
+        out: list[list[int]] = []
+        used = 0
+        for j, d in enumerate(diameters_um):
+            # energy map (float64) and kernel spectrum
+            cost = 8 * n + (0 if self.integ.is_point(d) else self.integ.spectrum_nbytes)
+            if out and used + cost <= _ANGLE_BLOCK_BYTES:
+                out[-1].append(j)
+                used += cost
+            else:
+                out.append([j])
+                used = cost
+        return out
+
+    def release(self) -> None:
+        """Drop the current map and spectrum."""
+        self._current = None
 
 
 def assess_sequence(
@@ -1886,7 +2237,8 @@ def assess_sequence(
     ----------
     frames : sequence of Frame or (irradiance, pulses)
         Each frame's predicted retinal irradiance (mW/mm^2 at the frame's laser
-        power, on ``grid``) and its pulses (ms from the start of the sequence).
+        power, on ``grid``; an array or a zero-argument callable returning one,
+        see :class:`Frame`) and its pulses (ms from the start of the sequence).
     grid : RetinalGrid
         Shared sampling of every map.
     wavelength_nm : float
@@ -1917,6 +2269,33 @@ def assess_sequence(
     10 s the photochemical limit is evaluated with discs of gamma_ph of the
     whole sequence (a larger disc than any shorter window's, so it errs
     high).
+
+    Memory does not grow with the number of frames. Frames that show one map
+    (same key, same array, same callable, or callables returning the same
+    array object) are treated as one map; to learn this, a lazy frame without
+    a key is called once beforehand. The angles are taken in blocks whose
+    accumulators (per angle a float64 disc-energy map and the spectrum of the
+    disc kernel) fit in 512 MiB, at least one angle per block. For each
+    block, pass 1 reads the maps one at a time (the first pass also builds
+    the dose and peak maps), computes the map's spectrum once and from it the
+    disc-power map of each angle of the block in turn, records its maximum
+    and adds it to that angle's disc-energy map; the last map is sampled at
+    the evaluation locations as soon as they are final. Pass 2 reads the
+    other maps again, recomputes their disc-power maps and samples them.
+    Besides the dose and peak maps and the block's accumulators, one map, its
+    spectrum and the FFT work arrays of one disc-power map are alive at a
+    time, plus per angle a table of disc powers (locations x distinct maps).
+    Each distinct map is read and transformed twice per block; the kernels
+    are transformed once per block. The results equal those of holding
+    every map, except that the dose and disc-energy sums are formed map by
+    map: when frames of one map are interleaved with frames of others, the
+    dose map can differ from frame-order summation in the last bit.
+
+    References
+    ----------
+    .. [1] ICNIRP, "Guidelines on limits of exposure to laser radiation of
+       wavelengths between 180 nm and 1,000 um", Health Phys. 105, 271 (2013).
+    .. [2] IEC 60825-1:2014, Safety of laser products, Annex A.
     """
     grid = _check_grid(grid)
     lam = _wavelength(wavelength_nm)
@@ -1940,18 +2319,7 @@ def assess_sequence(
     weight_s = np.bincount(frame_idx, weights=scales * durs, minlength=n_f)  # scale x s
     max_scale = np.zeros(n_f)
     np.maximum.at(max_scale, frame_idx, scales)
-    lit = [k for k in range(n_f) if max_scale[k] > 0 and np.any(items[k].irradiance_mw_per_mm2)]
-
-    # Dose and peak maps (per sample).
-    dose = np.zeros(grid.shape, dtype=np.float64)
-    for k in range(n_f):
-        if weight_s[k] > 0:
-            dose += items[k].irradiance_mw_per_mm2 * weight_s[k]
     overlap = _frames_overlap(starts, durs, frame_idx)
-    peak = np.zeros(grid.shape, dtype=np.float64)
-    for k in range(n_f):
-        m = items[k].irradiance_mw_per_mm2 * max_scale[k]
-        peak = peak + m if overlap else np.maximum(peak, m)
     notes: list[str] = []
     if overlap:
         notes.append("Pulses of different frames overlap in time: the peak map adds them.")
@@ -1968,56 +2336,45 @@ def assess_sequence(
     photo = _photochemical_applies(lam, total)
     gamma = _gamma_ph(total) if photo else None
     eval_angles = sorted(set(alphas) | ({gamma} if gamma is not None else set()))
-    max_d = max(retinal_image_diameter_um(a, eye) for a in eval_angles)
-    integrators: dict[int, _DiscIntegrator] = {}
-    by_id: dict[int, _DiscIntegrator] = {}
-    for k in lit:
-        arr = items[k].irradiance_mw_per_mm2
-        if id(arr) not in by_id:
-            by_id[id(arr)] = _DiscIntegrator(arr, grid, max_d)
-        integrators[k] = by_id[id(arr)]
+    diameters = [retinal_image_diameter_um(a, eye) for a in eval_angles]
 
-    fixed_locs = {_peak_location(dose), _peak_location(peak)}
+    # The maps, one at a time: dose and peak maps, and per angle the disc powers.
+    groups = _map_groups(items)
+    group_of = np.empty(n_f, dtype=np.int64)
+    for gi, g in enumerate(groups):
+        group_of[g.frames] = gi
+    sweep = _MapSweep(groups, grid, weight_s, max_scale, overlap, max(diameters))
     rules = {r: _empty_rule(r, alphas[0]) for r in RULES}
     angle_rows: list[AngleResult] = []
-    for a in eval_angles:
-        d_um = retinal_image_diameter_um(a, eye)
-        cache: dict[int, np.ndarray] = {}
-        maps: dict[int, np.ndarray] = {}
-        for k in lit:
-            key = id(integrators[k])
-            if key not in cache:
-                cache[key] = integrators[k].power_map_mw(d_um)
-            maps[k] = cache[key]
-        locs = set(fixed_locs)
-        energy = np.zeros(grid.shape, dtype=np.float64)
-        max_power = 0.0
-        for k in lit:
-            row, col = _peak_location(maps[k])
-            locs.add((row, col))
-            max_power = max(max_power, float(maps[k][row, col]) * max_scale[k])
-            energy += maps[k] * weight_s[k]
-        if lit:
-            locs.add(_peak_location(energy))
-        hazards = []
-        if a in alphas:
-            hazards.append("thermal")
-        if photo and a == gamma:
-            hazards.append("photochemical")
-        at_angle = {r: _empty_rule(r, a) for r in RULES}
-        for row, col in sorted(locs):
-            frame_power = np.zeros(n_f)
-            for k in lit:
-                frame_power[k] = maps[k][row, col]
-            powers = frame_power[frame_idx] * scales
-            x, y = grid.point_of(row, col)
-            for hz in hazards:
-                res = _timeline_rules(starts, durs, powers, lam, a, eye, hz)
-                res = {r: replace(res[r], x_um=float(x), y_um=float(y)) for r in RULES}
-                at_angle = _merge_rules(at_angle, res)
-        rules = _merge_rules(rules, at_angle)
-        b = _binding(at_angle)
-        angle_rows.append(AngleResult(a, d_um, float(max_power), b.ratio, b.rule, b.hazard))
+    lit_frames: np.ndarray | None = None
+    for block in sweep.blocks(diameters):
+        results = sweep.block([diameters[j] for j in block])
+        if lit_frames is None:
+            lit_groups = np.zeros(len(groups), dtype=bool)
+            lit_groups[sweep.lit] = True
+            lit_frames = np.flatnonzero(lit_groups[group_of] & (max_scale > 0))
+        for j, res in zip(block, results, strict=True):
+            a, d_um = eval_angles[j], diameters[j]
+            hazards = []
+            if a in alphas:
+                hazards.append("thermal")
+            if photo and a == gamma:
+                hazards.append("photochemical")
+            at_angle = {r: _empty_rule(r, a) for r in RULES}
+            for n, (row, col) in enumerate(res.locations):
+                frame_power = np.zeros(n_f)
+                frame_power[lit_frames] = res.power_at[n, group_of[lit_frames]]
+                powers = frame_power[frame_idx] * scales
+                x, y = grid.point_of(row, col)
+                for hz in hazards:
+                    out = _timeline_rules(starts, durs, powers, lam, a, eye, hz)
+                    out = {r: replace(out[r], x_um=float(x), y_um=float(y)) for r in RULES}
+                    at_angle = _merge_rules(at_angle, out)
+            rules = _merge_rules(rules, at_angle)
+            b = _binding(at_angle)
+            angle_rows.append(AngleResult(a, d_um, res.max_power_mw, b.ratio, b.rule, b.hazard))
+    sweep.release()
+    dose, peak = sweep.dose, sweep.peak
 
     worst = _binding(rules)
     verdict_std = _verdict(worst.ratio)
@@ -2077,17 +2434,37 @@ def _peak_location(values: np.ndarray) -> tuple[int, int]:
 
     A disc larger than a hot spot holds the same power at many centres; this
     reports the centre of that plateau (the spot itself, or the middle of a
-    uniform field) rather than an arbitrary corner of it.
+    uniform field) rather than an arbitrary corner of it. The tied samples are
+    visited in row chunks, so a large plateau needs no full-size index arrays.
     """
+    rows, cols = values.shape
     flat = int(np.argmax(values))
     top = float(values.flat[flat])
     if top <= 0:
-        return divmod(flat, values.shape[1])
-    rows, cols = np.nonzero(values >= top * (1 - 1e-5))
-    if len(rows) == 1:
-        return int(rows[0]), int(cols[0])
-    k = int(np.argmin((rows - rows.mean()) ** 2 + (cols - cols.mean()) ** 2))
-    return int(rows[k]), int(cols[k])
+        return divmod(flat, cols)
+    thr = top * (1 - 1e-5)
+    step = max(1, _CHUNK_SAMPLES // cols)
+    n = sum_r = sum_c = 0
+    for i in range(0, rows, step):
+        rr, cc = np.nonzero(values[i : i + step] >= thr)
+        n += rr.size
+        sum_r += int(rr.sum()) + i * rr.size
+        sum_c += int(cc.sum())
+    if n == 1:
+        return divmod(flat, cols)
+    # Integer sums are exact, so these equal the mean of the index arrays.
+    r_mean, c_mean = sum_r / n, sum_c / n
+    best, where = math.inf, (0, 0)
+    for i in range(0, rows, step):
+        rr, cc = np.nonzero(values[i : i + step] >= thr)
+        if not rr.size:
+            continue
+        rr = rr + i
+        d2 = (rr - r_mean) ** 2 + (cc - c_mean) ** 2
+        m = int(np.argmin(d2))
+        if d2[m] < best:
+            best, where = float(d2[m]), (int(rr[m]), int(cc[m]))
+    return where
 
 
 def _frames_overlap(starts: np.ndarray, durs: np.ndarray, frame_idx: np.ndarray) -> bool:

@@ -102,6 +102,8 @@ class StimulusPlan:
         Per-pixel figures at 1 mW (None without an implant).
     readout : PixelReadout or None
         Hologram readout at 1 mW.
+    grid : RetinalGrid
+        The prediction grid.
 
     Notes
     -----
@@ -127,6 +129,7 @@ class StimulusPlan:
     ) -> None:
         self.name = name
         self.hologram_index = hologram_index
+        self.grid = prediction.grid  # the prediction grid, kept when the maps are spooled
         self._parts = {
             "target": target,
             "hologram": hologram,
@@ -638,23 +641,37 @@ def _resolve_frame(fr, spec, plans) -> FramePlan:
 
 
 def _assess(frames, plans, which: str, wavelength_nm: float, spec):
-    """Exposure of the timeline; frames of one map and power are merged (same exposure)."""
-    groups: dict[tuple[int, float], list] = {}
+    """Exposure of the timeline.
+
+    Each hologram is one (lazily read) map at 1 mW; every pulse carries its
+    frame's laser power as its scale, so frames of one hologram at any powers
+    share one map and the maps are read one at a time.
+    """
+    pulses_of: dict[int, list] = {}
     by_index = {p.hologram_index: p for p in plans.values()}
     for fr in frames:
         if not fr.lit or not fr.pulses:
             continue
-        groups.setdefault((fr.hologram_index, round(fr.power_mw, 12)), []).extend(fr.pulses)
-    if not groups:
+        k = np.float64(fr.power_mw / REFERENCE_POWER_MW)
+        pulses_of.setdefault(fr.hologram_index, []).extend(
+            replace(p, scale=p.scale * float(k)) for p in fr.pulses
+        )
+    if not pulses_of:
         return None
     xframes = []
-    grid = None
-    for (hi, power), pulses in groups.items():
+    for hi, pulses in pulses_of.items():
         sp = by_index[hi]
-        pred = sp.prediction if which == "hologram" else sp.mask_prediction
-        grid = sp.prediction.grid
-        irr = pred.irradiance_mw_per_mm2 * np.float32(power / REFERENCE_POWER_MW)
-        xframes.append(xp.Frame(irr, tuple(sorted(pulses, key=lambda p: p.start_ms)), sp.name))
+        grid = sp.grid
+
+        def load(sp=sp):
+            pred = sp.prediction if which == "hologram" else sp.mask_prediction
+            return pred.irradiance_mw_per_mm2
+
+        xframes.append(
+            xp.Frame(
+                load, tuple(sorted(pulses, key=lambda p: p.start_ms)), sp.name, key=f"{which}-{hi}"
+            )
+        )
     return xp.assess_sequence(
         xframes,
         grid,

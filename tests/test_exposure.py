@@ -11,9 +11,12 @@ derived here from the formulas, never pasted from the code's output.
 from __future__ import annotations
 
 import math
+import tracemalloc
+from dataclasses import replace
 
 import numpy as np
 import pytest
+import scipy.fft as sfft
 
 from stimplan import exposure as ex
 from stimplan.cautions import CAUTION_SHORT, CAUTIONS, EDITION
@@ -636,3 +639,344 @@ def test_every_summary_carries_the_caution_and_the_edition():
     for obj in (mpe, train):
         assert obj.edition == EDITION
         assert CAUTIONS in obj.summary()
+
+
+# --------------------------------------------------------------------------
+# Long sequences: lazy frames, shared maps, bounded memory
+# --------------------------------------------------------------------------
+
+
+def _ref_peak_location(values):
+    # The location rule of assess_sequence, written directly on full index arrays.
+    flat = int(np.argmax(values))
+    top = float(values.flat[flat])
+    if top <= 0:
+        return divmod(flat, values.shape[1])
+    rows, cols = np.nonzero(values >= top * (1 - 1e-5))
+    if len(rows) == 1:
+        return int(rows[0]), int(cols[0])
+    k = int(np.argmin((rows - rows.mean()) ** 2 + (cols - cols.mean()) ** 2))
+    return int(rows[k]), int(cols[k])
+
+
+def _ref_disc_maps(irr, grid, diameters_um):
+    # Area-weighted disc integration by zero-padded FFT convolution, padded for the
+    # largest disc, one map at a time; a disc within one sample is a point.
+    def half(d):
+        r = d / 2.0
+        return (
+            min(int(math.ceil(r / grid.pitch_y_um + 0.5)), grid.rows - 1),
+            min(int(math.ceil(r / grid.pitch_x_um + 0.5)), grid.cols - 1),
+        )
+
+    hy, hx = half(max(diameters_um))
+    shape = (
+        sfft.next_fast_len(grid.rows + 2 * hy, real=True),
+        sfft.next_fast_len(grid.cols + 2 * hx, real=True),
+    )
+    spectrum = sfft.rfft2(np.ascontiguousarray(irr, dtype=np.float32), s=shape, workers=-1)
+    out = []
+    for d in diameters_um:
+        if d <= min(grid.pitch_x_um, grid.pitch_y_um):
+            out.append(irr * np.float32(math.pi * (d * 1e-3) ** 2 / 4.0))
+            continue
+        ky, kx = half(d)
+        kernel = ex._disc_kernel(d, grid.pitch_x_um, grid.pitch_y_um, ky, kx)
+        full = sfft.irfft2(spectrum * sfft.rfft2(kernel, s=shape, workers=-1), s=shape, workers=-1)
+        m = np.array(full[ky : ky + grid.rows, kx : kx + grid.cols])
+        m[m < 1e-6 * float(m.max())] = 0.0
+        out.append(m)
+    return out
+
+
+def _reference_assess(maps, pulses, grid, lam, alphas_mrad=None):
+    """Every map and every disc-power map held at once, evaluated frame by frame.
+
+    The straightforward form of the varying-angle evaluation of assess_sequence:
+    the locations are each frame's disc-power maximum, the disc-energy maximum and
+    the samples of largest dose and peak irradiance. # common practice
+    """
+    eye = ex.HUMAN_EYE
+    all_p = [p for ps in pulses for p in ps]
+    frame_idx = np.array([k for k, ps in enumerate(pulses) for _ in ps], dtype=np.int64)
+    starts, durs = ex._timeline_arrays(all_p, "pulses")
+    scales = np.array([p.scale for p in all_p])
+    total = float(np.max(starts + durs) - starts.min())
+    n_f = len(maps)
+    weight = np.bincount(frame_idx, weights=scales * durs, minlength=n_f)
+    top = np.zeros(n_f)
+    np.maximum.at(top, frame_idx, scales)
+    lit = [k for k in range(n_f) if top[k] > 0 and np.any(maps[k])]
+    dose = sum((maps[k] * weight[k] for k in range(n_f)), np.zeros(grid.shape))
+    overlap = ex._frames_overlap(starts, durs, frame_idx)
+    peak = np.zeros(grid.shape)
+    for k in range(n_f):
+        peak = peak + maps[k] * top[k] if overlap else np.maximum(peak, maps[k] * top[k])
+    if alphas_mrad is None:
+        alphas = ex.default_acceptance_angles_mrad(
+            np.unique(durs), total_duration_s=total, wavelength_nm=lam
+        )
+    else:
+        alphas = tuple(sorted(set(alphas_mrad)))
+    photo = ex._photochemical_applies(lam, total)
+    gamma = ex._gamma_ph(total) if photo else None
+    angles = sorted(set(alphas) | ({gamma} if photo else set()))
+    diams = [ex.retinal_image_diameter_um(a, eye) for a in angles]
+    disc = {k: _ref_disc_maps(maps[k], grid, diams) for k in lit}
+    fixed = {_ref_peak_location(dose), _ref_peak_location(peak)}
+    rules = {r: ex._empty_rule(r, alphas[0]) for r in ex.RULES}
+    rows = []
+    for j, a in enumerate(angles):
+        locs = set(fixed)
+        energy = np.zeros(grid.shape)
+        max_power = 0.0
+        for k in lit:
+            r, c = _ref_peak_location(disc[k][j])
+            locs.add((r, c))
+            max_power = max(max_power, float(disc[k][j][r, c]) * top[k])
+            energy += disc[k][j] * weight[k]
+        if lit:
+            locs.add(_ref_peak_location(energy))
+        hazards = (["thermal"] if a in alphas else []) + (["photochemical"] if a == gamma else [])
+        at = {r: ex._empty_rule(r, a) for r in ex.RULES}
+        for r, c in sorted(locs):
+            fp = np.zeros(n_f)
+            for k in lit:
+                fp[k] = disc[k][j][r, c]
+            x, y = grid.point_of(r, c)
+            for hz in hazards:
+                res = ex._timeline_rules(starts, durs, fp[frame_idx] * scales, lam, a, eye, hz)
+                at = ex._merge_rules(
+                    at, {n: replace(res[n], x_um=float(x), y_um=float(y)) for n in ex.RULES}
+                )
+        rules = ex._merge_rules(rules, at)
+        b = ex._binding(at)
+        rows.append((a, diams[j], float(max_power), b.ratio, b.rule, b.hazard))
+    return {"dose": dose, "peak": peak, "rules": rules, "angles": rows}
+
+
+def _spots(grid: RetinalGrid, n: int, seed: int) -> list[np.ndarray]:
+    """Demo maps: a bright disc each at its own place on a dim random floor."""
+    rng = np.random.default_rng(seed)
+    x, y = grid.coords_um()
+    out = []
+    for _ in range(n):
+        cx, cy = rng.uniform(-0.3, 0.3, 2) * grid.cols * grid.pitch_x_um
+        r = rng.uniform(0.05, 0.12) * grid.cols * grid.pitch_x_um
+        m = np.where((x - cx) ** 2 + (y - cy) ** 2 < r * r, rng.uniform(1.0, 5.0), 0.0)
+        out.append((m + rng.uniform(0.0, 0.05, grid.shape)).astype(np.float32))
+    return out
+
+
+def _not_read() -> np.ndarray:
+    raise AssertionError("a frame sharing a key must not be read")
+
+
+class _Counted:
+    """A lazy map that counts how often it is read (a fresh copy each time)."""
+
+    def __init__(self, arr: np.ndarray):
+        self.arr, self.calls = arr, 0
+
+    def __call__(self) -> np.ndarray:
+        self.calls += 1
+        return self.arr.copy()
+
+
+def _train(start_ms: float, n: int = 5, scale: float = 1.0) -> tuple:
+    return tuple(ex.Pulse(start_ms + 40.0 * i, 10.0, scale) for i in range(n))
+
+
+def _mixed_sequence(grid: RetinalGrid, long: bool):
+    """Eager, lazy, shared, keyed, dark and unlit frames; their maps and pulses."""
+    a, b, c, d = _spots(grid, 4, seed=7)
+    base = d * np.float32(0.5)  # a base map shared by two lazy frames
+    zero = np.zeros(grid.shape, np.float32)
+    lazy_b, lazy_c = _Counted(b), _Counted(c)
+    if long:  # over 10 s: the photochemical limits apply at 450 nm
+        p = [tuple(ex.Pulse(3000.0 * i + 500.0 * k, 400.0) for i in range(4)) for k in range(6)]
+    else:
+        p = [_train(0), _train(10), _train(20), _train(30), _train(15, 2, 0.5), _train(5)]
+    frames = [
+        ex.Frame(a, p[0], "a"),
+        ex.Frame(lazy_b, p[1], "b, lazy"),
+        (a, p[2]),  # the same array again
+        ex.Frame(lazy_c, p[3], "c, keyed", key="c"),
+        ex.Frame(_not_read, p[4], "c again", key="c"),
+        ex.Frame(lambda: base, p[5], "shared base"),
+        ex.Frame(lambda: base, _train(25, 3), "shared base again"),
+        ex.Frame(zero, _train(35), "dark"),
+        ex.Frame(lambda: a * np.float32(2.0), _train(8, 2, 0.0), "unlit"),
+    ]
+    maps = [a, b, a, c, c, base, base, zero, a * np.float32(2.0)]
+    pulses = [f.pulses if isinstance(f, ex.Frame) else f[1] for f in frames]
+    return frames, maps, pulses, (lazy_b, lazy_c)
+
+
+@pytest.mark.parametrize("budget", [None, 0])
+@pytest.mark.parametrize(
+    ("lam", "long", "pitch"),
+    [(880.0, False, (12.0, 14.0)), (880.0, False, (30.0, 30.0)), (450.0, True, (12.0, 14.0))],
+)
+def test_sequence_matches_the_direct_evaluation(monkeypatch, budget, lam, long, pitch):
+    # The map-at-a-time evaluation against the direct one that holds every map
+    # (_reference_assess). # common practice
+    if budget is not None:
+        monkeypatch.setattr(ex, "_ANGLE_BLOCK_BYTES", budget)  # one angle per block
+    grid = RetinalGrid((56, 48), *pitch)  # at 30 um the 1.5 mrad disc is a point
+    frames, maps, pulses, counted = _mixed_sequence(grid, long)
+    res = ex.assess_sequence(frames, grid, lam)
+    ref = _reference_assess(maps, pulses, grid, lam)
+    for r in ex.RULES:
+        got, want = res.rules[r], ref["rules"][r]
+        assert got.ratio == pytest.approx(want.ratio, rel=1e-12, abs=0)
+        assert (got.x_um, got.y_um, got.alpha_mrad, got.hazard) == (
+            want.x_um,
+            want.y_um,
+            want.alpha_mrad,
+            want.hazard,
+        )
+        assert (got.n_pulses, got.window_start_ms, got.c_p) == (
+            want.n_pulses,
+            want.window_start_ms,
+            want.c_p,
+        )
+    assert [(a.alpha_mrad, a.rule, a.hazard) for a in res.angles] == [
+        (a[0], a[4], a[5]) for a in ref["angles"]
+    ]
+    for got, want in zip(res.angles, ref["angles"], strict=True):
+        assert got.max_disc_power_mw == pytest.approx(want[2], rel=1e-12, abs=0)
+        assert got.worst_ratio == pytest.approx(want[3], rel=1e-12, abs=0)
+    # frames of one map are interleaved here: the dose sums differ in order only
+    np.testing.assert_allclose(res.dose_map_mj_per_mm2, ref["dose"], rtol=1e-6, atol=0)
+    np.testing.assert_allclose(res.peak_irradiance_map_mw_per_mm2, ref["peak"], rtol=1e-6, atol=0)
+    if lam == 450.0:
+        assert "photochemical" in {a.hazard for a in res.angles}
+    # each lazy map is read a bounded number of times: once to group it, then at most
+    # twice per block of angles
+    n_blocks = 1 if budget is None else len(res.angles)
+    for lazy in counted:
+        assert 1 <= lazy.calls <= 1 + 2 * n_blocks
+    assert CAUTIONS in res.summary() and res.edition == EDITION
+    assert res.as_dict()["caution"] == CAUTIONS
+
+
+def test_frames_of_one_map_are_grouped():
+    grid = RetinalGrid((16, 16), 10.0, 10.0)
+    a, b = _spots(grid, 2, seed=3)
+    base = b * np.float32(1.0)
+    fresh = _Counted(a)
+    frames = ex._as_frames(
+        [
+            ex.Frame(a, _train(0)),
+            ex.Frame(fresh, _train(1)),  # a fresh copy: a map of its own
+            ex.Frame(fresh, _train(2)),  # the same callable
+            ex.Frame(lambda: base, _train(3)),
+            ex.Frame(base, _train(4)),  # the array the callables return
+            ex.Frame(lambda: base, _train(5)),
+            ex.Frame(_not_read, _train(6), key="k"),
+            ex.Frame(a, _train(7), key="k"),  # the key decides, not the array
+        ],
+        grid,
+    )
+    groups = ex._map_groups(frames)
+    assert [g.frames for g in groups] == [[0], [1, 2], [3, 4, 5], [6, 7]]
+    assert fresh.calls == 1
+
+
+def test_lazy_frames_give_the_closed_form_figures():
+    # Full field, 10 s: the margin of test_full_field_within_the_limit_with_its_margin.
+    grid = RetinalGrid((256, 256), 10.0, 10.0)
+    frame = ex.Frame(lambda: np.full(grid.shape, 0.1), (ex.Pulse(0.0, 10_000.0),))
+    assert frame.is_lazy and not ex.Frame(np.zeros(grid.shape), ()).is_lazy
+    res = ex.assess_sequence([frame], grid, 880.0)
+    assert res.margin == pytest.approx(_full_field_limit_mw_per_mm2(10.0) / 0.1, rel=1e-2)
+    same = ex.evaluate_map(lambda: np.full(grid.shape, 0.1), grid, 880.0, 10.0)
+    assert same.worst_ratio == res.worst_ratio
+    # Ten lazy frames of 1 s each, back to back: dose = irradiance x time.
+    frames = [
+        ex.Frame(lambda: np.full(grid.shape, 0.1), (ex.Pulse(1000.0 * k, 1000.0),))
+        for k in range(10)
+    ]
+    res10 = ex.assess_sequence(frames, grid, 880.0, alphas_mrad=(100.0,))
+    assert res10.max_dose_mj_per_mm2 == pytest.approx(0.1 * 10.0, rel=1e-6)
+    assert res10.peak_irradiance_mw_per_mm2 == pytest.approx(0.1, rel=1e-6)
+    assert CAUTIONS in res10.summary() and res10.edition == EDITION
+
+
+def test_load_irradiance_checks_the_map():
+    grid = RetinalGrid((8, 6), 5.0, 5.0)
+    arr = np.ones(grid.shape)
+    got = ex.Frame(lambda: arr, ()).load_irradiance_mw_per_mm2(grid)
+    assert got.dtype == np.float32 and got.shape == grid.shape
+    assert ex.Frame(arr, ()).load_irradiance_mw_per_mm2().dtype == np.float32
+    with pytest.raises(ConfigError) as err:
+        ex.Frame(lambda: np.ones((4, 4)), ()).load_irradiance_mw_per_mm2(grid)
+    assert err.value.field == "irradiance_mw_per_mm2" and "(8, 6)" in err.value.allowed
+
+
+def test_bad_lazy_frames_are_named():
+    grid = RetinalGrid((8, 8), 5.0, 5.0)
+    ok = ex.Frame(np.ones(grid.shape), _train(0))
+
+    def broken() -> np.ndarray:
+        raise OSError("no such file: map7.npy")
+
+    with pytest.raises(ConfigError) as err:
+        ex.assess_sequence([ok, ex.Frame(broken, _train(1))], grid, 880.0)
+    assert err.value.field == "frames[1].irradiance_mw_per_mm2"
+    assert "callable" in err.value.allowed and "map7.npy" in err.value.detail
+    with pytest.raises(ConfigError) as err:
+        ex.assess_sequence([ok, ex.Frame(lambda: -np.ones(grid.shape), _train(1))], grid, 880.0)
+    assert err.value.field == "frames[1].irradiance_mw_per_mm2" and ">= 0" in err.value.allowed
+    with pytest.raises(ConfigError) as err:
+        ex.assess_sequence([ok, ex.Frame(lambda: np.ones((4, 4)), _train(1), key="m")], grid, 880.0)
+    assert err.value.field == "frames[1].irradiance_mw_per_mm2"
+    with pytest.raises(ConfigError) as err:
+        ex.assess_sequence([ex.Frame(np.ones(grid.shape), _train(0), key=7)], grid, 880.0)
+    assert err.value.field == "frames[0].key"
+
+
+def _traced_peak_bytes(frames, grid) -> int:
+    tracemalloc.start()
+    try:
+        ex.assess_sequence(frames, grid, 880.0, alphas_mrad=(1.5, 5.0, 20.0, 50.0))
+        return tracemalloc.get_traced_memory()[1]
+    finally:
+        tracemalloc.stop()
+
+
+def _lazy_from_disk(tmp_path, grid, n) -> list:
+    # Each frame reads its own map from disk when asked (demo maps: one spot each).
+    rng = np.random.default_rng(5)
+    x, y = grid.coords_um()
+    frames = []
+    for k in range(n):
+        cx, cy = rng.uniform(-1500.0, 1500.0, 2)
+        spot = np.exp(-((x - cx) ** 2 + (y - cy) ** 2) / (2 * 200.0**2)) * (1 + k % 3)
+        path = tmp_path / f"map{k}.npy"
+        np.save(path, spot.astype(np.float32))
+        pulses = ex.periodic_pulses(10.0, frequency_hz=20.0, duration_ms=200.0, start_ms=200.0 * k)
+        frames.append(ex.Frame(lambda path=path: np.load(path), pulses, f"spot {k}"))
+    return frames
+
+
+@pytest.mark.parametrize("one_angle_per_block", [True, False])
+def test_memory_does_not_grow_with_the_number_of_frames(monkeypatch, tmp_path, one_angle_per_block):
+    # 512 x 512 float32 maps of 1 MiB each, all distinct, read lazily from disk. Holding
+    # them would take 40 maps (and 40 spectra); the sweep holds one at a time.
+    # numpy allocations are traced by tracemalloc. # common practice
+    if one_angle_per_block:
+        monkeypatch.setattr(ex, "_ANGLE_BLOCK_BYTES", 0)
+    grid = RetinalGrid((512, 512), 10.0, 10.0)
+    map_bytes = grid.rows * grid.cols * 4
+    frames = _lazy_from_disk(tmp_path, grid, 40)
+    peak_40 = _traced_peak_bytes(frames, grid)
+    peak_10 = _traced_peak_bytes(frames[:10], grid)
+    assert peak_40 < peak_10 + map_bytes
+    if one_angle_per_block:
+        # dose and peak maps (float64), one energy map, the map, two spectra, FFT work arrays
+        assert peak_40 < 15 * map_bytes
+    else:
+        # plus the energy map and kernel spectrum of each of the 4 angles
+        assert peak_40 < 25 * map_bytes

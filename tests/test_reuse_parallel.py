@@ -89,9 +89,12 @@ def test_local_cluster_batch_equals_serial_run():
     distributed = pytest.importorskip("distributed")  # in the test extras; never skips in CI
     spec = _spec()
     serial = plan_sequence(spec, progress=False, scheduler="serial")
-    with distributed.LocalCluster(
-        n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None
-    ) as cluster, distributed.Client(cluster) as client:
+    with (
+        distributed.LocalCluster(
+            n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None
+        ) as cluster,
+        distributed.Client(cluster) as client,
+    ):
         remote = plan_sequence(spec, progress=False, scheduler=client)
         by_address = plan_sequence(spec, progress=False, scheduler=cluster.scheduler_address)
     for x, y, z in zip(serial.holograms, remote.holograms, by_address.holograms, strict=True):
