@@ -42,12 +42,14 @@ def stimulus_rows(plan) -> list[dict]:
         power = frames[0].power_mw if frames else 0.0
         h, m = sp.hologram_figures, sp.mask_figures
         exp = plan.stimulus_exposure.get(sp.hologram_index)
+        first = frames[0] if frames else None
         rows.append(
             {
                 "name": names[0],
                 "names": names,
                 "hologram_index": sp.hologram_index,
                 "laser_power_mw": power,
+                "mask_laser_power_mw": None if first is None else plan.mask_power_for(first),
                 "efficiency": sp.metrics.efficiency,
                 "uniformity": sp.metrics.uniformity,
                 "on_pixel_power_uw": {
@@ -86,7 +88,10 @@ def plan_summary(plan) -> dict:
             "mask_worst_ratio": None
             if plan.mask_exposure is None
             else plan.mask_exposure.worst_ratio,
-            "max_peak_frame_power_mw": plan.max_laser_power_mw(),
+            "max_peak_frame_power_mw": {
+                "hologram": plan.max_laser_power_mw("hologram"),
+                "mask": plan.max_laser_power_mw("mask"),
+            },
         },
         "cautions": CAUTIONS,
     }
@@ -101,6 +106,10 @@ def _json_safe(x):
     if isinstance(x, list):
         return [_json_safe(v) for v in x]
     return x
+
+
+def _num(x):
+    return float(x) if isinstance(x, str) else x
 
 
 def _fmt(x, spec=".3g") -> str:
@@ -130,6 +139,18 @@ def print_table(plan, file=None) -> None:
             file=file,
         )
     e = s["exposure"]
+    mp = e["max_peak_frame_power_mw"]
+    print(
+        "power planning: the mask needs "
+        + ", ".join(
+            f"{r['name']} {_fmt(r['mask_laser_power_mw'])} mW"
+            for r in s["stimuli"]
+            if r["mask_laser_power_mw"] is not None
+        )
+        + f" for the same ON-pixel irradiance; largest peak frame power within every limit: "
+        f"hologram {_fmt(_num(mp['hologram']))} mW, mask {_fmt(_num(mp['mask']))} mW",
+        file=file,
+    )
     line = (
         f"sequence exposure: {_fmt(e['worst_ratio'])} of the limit "
         f"({e['binding_rule'] or '-'}), verdict: {e['verdict']}"

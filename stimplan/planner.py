@@ -19,6 +19,7 @@ import pickle
 import sys
 import tempfile
 import threading
+import time
 from collections.abc import Callable
 from dataclasses import dataclass, field, replace
 from functools import cached_property
@@ -130,6 +131,7 @@ class StimulusPlan:
         self.name = name
         self.hologram_index = hologram_index
         self.grid = prediction.grid  # the prediction grid, kept when the maps are spooled
+        self.prediction_account = prediction.account
         self._parts = {
             "target": target,
             "hologram": hologram,
@@ -224,7 +226,8 @@ class Plan:
     exposure : ExposureAssessment or None
         The hologram sequence against the limits (None if nothing is lit).
     mask_exposure : ExposureAssessment or None
-        The same timeline through the amplitude mask at the same powers.
+        The same timeline through the amplitude mask at the same powers;
+        computed on first use.
     stimulus_exposure : dict of int to ExposureAssessment
         Each hologram's frames alone (by hologram index); computed on first use.
     """
@@ -234,9 +237,15 @@ class Plan:
     holograms: tuple[StimulusPlan, ...]
     frames: tuple[FramePlan, ...]
     exposure: xp.ExposureAssessment | None
-    mask_exposure: xp.ExposureAssessment | None
     cautions: str = CAUTIONS
     spool: object = field(default=None, repr=False)
+    timings_s: dict = field(default_factory=dict)
+
+    @cached_property
+    def mask_exposure(self) -> xp.ExposureAssessment | None:
+        """The timeline through the amplitude mask at the same laser powers."""
+        wl = self.spec.system.illumination.wavelength_nm
+        return _assess(self.frames, self.stimuli, "mask", wl, self.spec)
 
     @cached_property
     def stimulus_exposure(self) -> dict[int, xp.ExposureAssessment]:
@@ -271,16 +280,37 @@ class Plan:
     def frames_of(self, name: str) -> list[FramePlan]:
         return [f for f in self.frames if f.stimulus == name]
 
-    def max_laser_power_mw(self) -> float:
-        """Largest uniform scaling of every frame's power that stays within every limit, as the
-        peak frame power (mW)."""
-        if self.exposure is None:
+    def max_laser_power_mw(self, which: str = "hologram") -> float:
+        """Largest peak frame power (mW) when every frame's power is scaled alike and every
+        rule, and the protocol cap, stays within its limit.
+
+        Parameters
+        ----------
+        which : {"hologram", "mask"}
+            The holograms, or the amplitude mask shown at the same powers.
+        """
+        a = self.exposure if which == "hologram" else self.mask_exposure
+        if a is None:
             return float("inf")
-        worst = max(self.exposure.worst_ratio, 0.0)
-        if self.exposure.protocol is not None:
-            worst = max(worst, self.exposure.protocol.worst_ratio)
+        worst = max(a.worst_ratio, 0.0)
+        if a.protocol is not None:
+            worst = max(worst, a.protocol.worst_ratio)
         peak = max((f.power_mw for f in self.frames if f.lit), default=0.0)
         return float("inf") if worst == 0 else peak / worst
+
+    def mask_power_for(self, frame: FramePlan) -> float | None:
+        """Laser power the amplitude mask needs for the frame's ON-pixel irradiance, mW.
+
+        For a frame planned by target irradiance this is the mask's power for the
+        same target; for a frame given in mW it is the power at which the mask
+        gives the ON pixels what the hologram gives them.
+        """
+        sp = self.stimuli.get(frame.stimulus) if frame.stimulus else None
+        if sp is None or sp.mask_figures is None or not frame.lit:
+            return None
+        h = sp.hologram_figures.on_irradiance_mw_per_mm2
+        m = sp.mask_figures.on_irradiance_mw_per_mm2
+        return None if m <= 0 else frame.power_mw * h / m
 
 
 def _build_target(stim, spec, grid) -> Target:
@@ -316,7 +346,7 @@ def _design(stim, spec, system, progress, workers, initial_phase_rad=None, itera
     )
 
 
-def _translated(base: Hologram, stim, spec, system, shift_rc) -> Hologram:
+def _translated(base: Hologram, stim, spec, system, shift_rc, base_name: str) -> Hologram:
     """The base hologram moved by ``shift_rc`` design samples with a linear phase ramp."""
     grid = system.design_grid()
     ramp = linear_phase_ramp(grid.shape, shift_rc[0], shift_rc[1])
@@ -332,7 +362,7 @@ def _translated(base: Hologram, stim, spec, system, shift_rc) -> Hologram:
         levels=levels,
         grey=grey_map_for(system.slm).to_grey(levels),
         target=target,
-        reused_from=base.target.name,
+        reused_from=base_name,
     )
 
 
@@ -463,7 +493,7 @@ def _task_fn(job: _Job, index: int, spec, system, tick, spool: str | None = None
     elif job.kind == "translate":
 
         def run(base, *, workers):
-            holo = _translated(base.hologram, stim, spec, system, job.shift_rc)
+            holo = _translated(base.hologram, stim, spec, system, job.shift_rc, base.name)
             return evaluate(name, stim, index, spec, system, holo, workers)
 
     else:
@@ -572,6 +602,7 @@ def plan_sequence(
         )
         for i, job in enumerate(jobs)
     ]
+    t_start = time.perf_counter()
     try:
         results = run_batch(tasks, scheduler=scheduler, on_done=tick)
     finally:
@@ -582,11 +613,12 @@ def plan_sequence(
         for n in job.names:
             plans[n] = sp
     ordered = list(results)
+    t_holograms = time.perf_counter() - t_start
     frames = tuple(_resolve_frame(fr, spec, plans) for fr in frames_spec)
     wl = spec.system.illumination.wavelength_nm
-    exposure = _assess(frames, plans, "hologram", wl, spec)
-    mask_exposure = _assess(frames, plans, "mask", wl, spec)
-    return Plan(spec, plans, tuple(ordered), frames, exposure, mask_exposure, spool=spool_dir)
+    exposure = _with_orders_note(_assess(frames, plans, "hologram", wl, spec), ordered)
+    timings = {"holograms": t_holograms, "exposure": time.perf_counter() - t_start - t_holograms}
+    return Plan(spec, plans, tuple(ordered), frames, exposure, spool=spool_dir, timings_s=timings)
 
 
 def _resolve_frame(fr, spec, plans) -> FramePlan:
@@ -679,3 +711,18 @@ def _assess(frames, plans, which: str, wavelength_nm: float, spec):
         protocol=spec.protocol,
         subject=spec.system.eye.name,
     )
+
+
+def _with_orders_note(assessment, holograms):
+    """Say how much light the predicted map leaves out (higher diffraction orders)."""
+    if assessment is None or not holograms:
+        return assessment
+    frac = max(
+        sp.prediction_account.higher_orders_mw / sp.prediction_account.input_mw for sp in holograms
+    )
+    note = (
+        f"Light diffracted into higher orders of the SLM pixel grid (up to {frac:.1%} of the "
+        "laser power here) lands outside the predicted field, as weaker copies one field "
+        "width away; it is not in the evaluated map."
+    )
+    return replace(assessment, notes=(*assessment.notes, note))

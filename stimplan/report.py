@@ -251,7 +251,8 @@ def render_report(plan) -> str:
             ("largest dose", f"{e.max_dose_mj_per_mm2:.3g} mJ/mm²"),
             (
                 "largest uniform power scaling within every limit",
-                f"peak frame power {plan.max_laser_power_mw():.3g} mW",
+                f"peak frame power {plan.max_laser_power_mw('hologram'):.3g} mW "
+                f"(the mask at the same powers: {plan.max_laser_power_mw('mask'):.3g} mW)",
             ),
             ("basis", e.basis),
         ]
@@ -283,8 +284,14 @@ def render_report(plan) -> str:
         ]
         if sp.hologram_figures is not None:
             h, k = sp.hologram_figures, sp.mask_figures
+            first = frames[0] if frames else None
+            mask_power = None if first is None else plan.mask_power_for(first)
             rows += [
                 ("ON pixels", str(int(sp.on.sum()))),
+                (
+                    "laser power the mask needs for the same ON-pixel irradiance",
+                    "-" if mask_power is None else f"{mask_power:.4g} mW",
+                ),
                 ("mean ON-pixel power, hologram", f"{h.on_power_uw * power:.4g} µW"),
                 (f"mean ON-pixel power, {k.label}", f"{k.on_power_uw * power:.4g} µW"),
                 ("ON-pixel CV, hologram", f"{h.on_cv:.3f}"),

@@ -44,8 +44,13 @@ def test_check_json_has_the_documented_keys(seq, capsys):
         assert {"name", "efficiency", "on_pixel_power_uw", "on_pixel_cv"} <= set(s)
         assert {"hologram", "mask"} <= set(s["on_pixel_power_uw"])
         assert s["on_pixel_power_uw"]["hologram"] > s["on_pixel_power_uw"]["mask"]
+        # Source: REFERENCES [der]: the mask needs (eta_holo/T_mask)(A_field/A_lit) times
+        # the power for the same irradiance on the lit pixels, far more than the hologram
+        assert s["mask_laser_power_mw"] > 5 * s["laser_power_mw"]
     assert data["exposure"]["verdict"] in ("within", "above")
     assert {"worst_ratio", "binding_rule"} <= set(data["exposure"])
+    limits = data["exposure"]["max_peak_frame_power_mw"]
+    assert float(limits["hologram"]) > 0 and float(limits["mask"]) > 0
     assert "estimate" in data["cautions"]
 
 

@@ -123,3 +123,11 @@ def test_errors_share_one_family():
     # common practice: one exception family for the CLI to map to exit codes
     assert issubclass(ConfigError, StimplanError)
     assert issubclass(InputFileError, StimplanError)
+
+
+def test_stimulus_missing_required_parameter_names_it():
+    # common practice: a missing key is reported by name, never as a bare TypeError
+    from stimplan.stimuli import stimulus_from_dict
+
+    with pytest.raises(ConfigError, match=r"image\.path.*width_um"):
+        stimulus_from_dict("image", {})

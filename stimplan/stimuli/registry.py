@@ -72,7 +72,24 @@ def stimulus_from_dict(
         params = {}
     if not isinstance(params, Mapping):
         raise ConfigError(f"{kind}", params, "a table of keyword parameters")
-    return STIMULUS_KINDS[kind].from_params(dict(params), eye=eye, pitch_um=pitch_um)
+    cls = STIMULUS_KINDS[kind]
+    try:
+        return cls.from_params(dict(params), eye=eye, pitch_um=pitch_um)
+    except TypeError as exc:  # a required parameter is missing
+        import dataclasses
+
+        required = [
+            f.name
+            for f in dataclasses.fields(cls)
+            if f.default is dataclasses.MISSING and f.default_factory is dataclasses.MISSING
+        ]
+        missing = [k for k in required if k not in params]
+        raise ConfigError(
+            f"{kind}.{missing[0] if missing else 'parameters'}",
+            None,
+            "the parameters " + ", ".join(required) if required else "valid parameters",
+            str(exc),
+        ) from None
 
 
 def from_dict(
