@@ -313,8 +313,8 @@ class Plan:
         return None if m <= 0 else frame.power_mw * h / m
 
 
-def _build_target(stim, spec, grid) -> Target:
-    design = stim.render(grid)
+def _build_target(stim, spec, grid, design=None) -> Target:
+    design = stim.render(grid) if design is None else design
     if spec.implant is not None and spec.implant_aware:
         return implant_target(design, grid, spec.implant, threshold=spec.on_threshold)
     return Target.from_intensity(design, grid, name="image-domain")
@@ -327,14 +327,16 @@ def _settings(spec):
     return st
 
 
-def _design(stim, spec, system, progress, workers, initial_phase_rad=None, iterations=None):
+def _design(
+    stim, spec, system, progress, workers, initial_phase_rad=None, iterations=None, design=None
+):
     grid = system.design_grid()
     st = _settings(spec)
     if iterations is not None:
         st = replace(
             st, iterations=iterations, quantized_iterations=min(st.quantized_iterations, iterations)
         )
-    target = _build_target(stim, spec, grid)
+    target = _build_target(stim, spec, grid, design)
     return design_hologram(
         target,
         system,
@@ -346,12 +348,14 @@ def _design(stim, spec, system, progress, workers, initial_phase_rad=None, itera
     )
 
 
-def _translated(base: Hologram, stim, spec, system, shift_rc, base_name: str) -> Hologram:
+def _translated(
+    base: Hologram, stim, spec, system, shift_rc, base_name: str, design=None
+) -> Hologram:
     """The base hologram moved by ``shift_rc`` design samples with a linear phase ramp."""
     grid = system.design_grid()
     ramp = linear_phase_ramp(grid.shape, shift_rc[0], shift_rc[1])
     phase = np.mod(base.phase_rad + ramp, np.float32(2 * np.pi))
-    target = _build_target(stim, spec, grid)
+    target = _build_target(stim, spec, grid, design)
     rows, cols = base.offset_samples
     if rows or cols:
         target = target.shifted(rows, cols)
@@ -366,9 +370,10 @@ def _translated(base: Hologram, stim, spec, system, shift_rc, base_name: str) ->
     )
 
 
-def _evaluate(name, stim, index, spec, system, holo, workers) -> StimulusPlan:
+def _evaluate(name, stim, index, spec, system, holo, workers, design=None) -> StimulusPlan:
     """Prediction, metrics, mask baseline and implant readout of one hologram (at 1 mW)."""
     grid = system.design_grid()
+    design = stim.render(grid) if design is None else design
     pred = holo.predict(system, oversample=spec.oversample, workers=workers)
     metrics = pattern_metrics(pred, holo.target)
     pg = pred.grid
@@ -388,7 +393,7 @@ def _evaluate(name, stim, index, spec, system, holo, workers) -> StimulusPlan:
     on = hfig = mfig = readout = None
     if spec.implant is not None:
         wl = system.illumination.wavelength_nm
-        states = pixel_states(stim.render(grid), grid, spec.implant, threshold=spec.on_threshold)
+        states = pixel_states(design, grid, spec.implant, threshold=spec.on_threshold)
         on = states.on
         readout = spec.implant.readout(pred.irradiance_mw_per_mm2, pg, wavelength_nm=wl)
         mread = spec.implant.readout(mp.irradiance_mw_per_mm2, pg, wavelength_nm=wl)
@@ -452,9 +457,7 @@ def plan_jobs(
         stim = spec.stimuli[names[0]]
         job = _Job(tuple(names), "fresh")
         if reuse:
-            lit = stim.render(grid) > 0
-            if region is not None:
-                lit &= region
+            lit = None
             best = None
             for j, other in enumerate(jobs):
                 if other.kind != "fresh":
@@ -466,6 +469,10 @@ def plan_jobs(
                 if aware:
                     best = (0.0, j, shift)
                     break
+                if lit is None:
+                    lit = stim.render(grid) > 0
+                    if region is not None:
+                        lit &= region
                 change = envelope_change(lit, shift, system.slm.fill_factor)
                 if change <= envelope_tolerance and (best is None or change < best[0]):
                     best = (change, j, shift)
@@ -487,22 +494,25 @@ def _task_fn(job: _Job, index: int, spec, system, tick, spool: str | None = None
     if job.kind == "fresh":
 
         def run(*, workers):
-            holo = _design(stim, spec, system, tick, workers)
-            return evaluate(name, stim, index, spec, system, holo, workers)
+            design = stim.render(system.design_grid())
+            holo = _design(stim, spec, system, tick, workers, design=design)
+            return evaluate(name, stim, index, spec, system, holo, workers, design)
 
     elif job.kind == "translate":
 
         def run(base, *, workers):
-            holo = _translated(base.hologram, stim, spec, system, job.shift_rc, base.name)
-            return evaluate(name, stim, index, spec, system, holo, workers)
+            design = stim.render(system.design_grid())
+            holo = _translated(base.hologram, stim, spec, system, job.shift_rc, base.name, design)
+            return evaluate(name, stim, index, spec, system, holo, workers, design)
 
     else:
 
         def run(base, *, workers):
             init = _initial_from(base.hologram, job.shift_rc, system.design_grid())
             its = max(10, spec.ifta.iterations // 2)
-            holo = _design(stim, spec, system, tick, workers, init, its)
-            return evaluate(name, stim, index, spec, system, holo, workers)
+            design = stim.render(system.design_grid())
+            holo = _design(stim, spec, system, tick, workers, init, its, design)
+            return evaluate(name, stim, index, spec, system, holo, workers, design)
 
     return run
 

@@ -33,9 +33,9 @@ def translation_between(a, b, grid, *, tolerance: float = 0.02) -> tuple[float, 
     """Retinal translation ``(dx_um, dy_um)`` that turns stimulus ``a`` into ``b``, or None.
 
     Candidates come from the parameters (centre, grating phase, checkerboard
-    reversal); each is verified by rendering both on ``grid`` and comparing
-    ``b`` with ``a`` shifted, away from the field edges (mean absolute
-    difference below ``tolerance``).
+    reversal); each is verified by rendering both on the field of ``grid``
+    (sampled by at most 256 per axis) and comparing ``b`` with ``a`` shifted,
+    away from the field edges (mean absolute difference below ``tolerance``).
 
     Parameters
     ----------
@@ -67,6 +67,7 @@ def translation_between(a, b, grid, *, tolerance: float = 0.02) -> tuple[float, 
             return None
         dx += float(pa["check_um"]) * math.cos(theta)
         dy += float(pa["check_um"]) * math.sin(theta)
+    grid = _coarse(grid)
     rows, cols = shift_in_samples((dx, dy), grid)
     ra, rb = a.render(grid), b.render(grid)
     if float(rb.max()) <= 0 or float(ra.max()) <= 0:
@@ -77,6 +78,19 @@ def translation_between(a, b, grid, *, tolerance: float = 0.02) -> tuple[float, 
     inner = (slice(m0, grid.rows - m0), slice(m1, grid.cols - m1))
     err = float(np.mean(np.abs(moved[inner] - rb[inner])))
     return (dx, dy) if err <= tolerance else None
+
+
+def _coarse(grid, samples: int = 256):
+    """The same field sampled by at most ``samples`` per axis (for cheap comparisons)."""
+    from .grid import RetinalGrid
+
+    fy = max(1, grid.rows // samples)
+    fx = max(1, grid.cols // samples)
+    if fy == 1 and fx == 1:
+        return grid
+    return RetinalGrid(
+        (grid.rows // fy, grid.cols // fx), grid.pitch_x_um * fx, grid.pitch_y_um * fy
+    )
 
 
 def shift_in_samples(offset_um: tuple[float, float], grid) -> tuple[float, float]:
