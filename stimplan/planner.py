@@ -31,8 +31,10 @@ from .baseline import project_mask
 from .cautions import CAUTIONS
 from .comparison import ProjectorFigures, mask_for_implant, pixel_figures
 from .errors import ConfigError
+from .grid import RetinalGrid
 from .holography import Hologram, design_hologram, linear_phase_ramp
 from .holography.design import display_levels
+from .holography.propagation import with_higher_orders
 from .holography.quantize import grey_map_for
 from .implant_target import implant_target, pixel_states
 from .metrics import PatternMetrics, pattern_metrics
@@ -701,13 +703,23 @@ def _assess(frames, plans, which: str, wavelength_nm: float, spec):
     if not pulses_of:
         return None
     xframes = []
+    margin = 0
     for hi, pulses in pulses_of.items():
         sp = by_index[hi]
         grid = sp.grid
+        if which == "hologram":
+            margin = _orders_margin(grid)
+            grid = RetinalGrid(
+                (grid.rows + 2 * margin, grid.cols + 2 * margin), grid.pitch_x_um, grid.pitch_y_um
+            )
 
-        def load(sp=sp):
-            pred = sp.prediction if which == "hologram" else sp.mask_prediction
-            return pred.irradiance_mw_per_mm2
+        def load(sp=sp, margin=margin):
+            if which == "mask":
+                return sp.mask_prediction.irradiance_mw_per_mm2
+            pred = sp.prediction
+            return with_higher_orders(
+                pred.irradiance_mw_per_mm2, pred.grid, spec.system.slm.fill_factor, margin
+            )[0]
 
         xframes.append(
             xp.Frame(
@@ -723,16 +735,31 @@ def _assess(frames, plans, which: str, wavelength_nm: float, spec):
     )
 
 
+def _orders_margin(grid) -> int:
+    """Samples of neighbouring diffraction orders to add around a map for the exposure.
+
+    The largest acceptance disc (alpha = 100 mrad through the reference eye) centred
+    anywhere on the predicted field must see the light next to it; at most one
+    whole order on each side.
+    """
+    radius_um = xp.retinal_image_diameter_um(100.0) / 2.0
+    m = int(np.ceil(radius_um / min(grid.pitch_x_um, grid.pitch_y_um)))
+    return min(m, grid.rows, grid.cols)
+
+
 def _with_orders_note(assessment, holograms):
-    """Say how much light the predicted map leaves out (higher diffraction orders)."""
+    """Say how the light of the higher diffraction orders is counted."""
     if assessment is None or not holograms:
         return assessment
     frac = max(
         sp.prediction_account.higher_orders_mw / sp.prediction_account.input_mw for sp in holograms
     )
+    g = holograms[0].grid
+    margin_um = _orders_margin(g) * min(g.pitch_x_um, g.pitch_y_um)
     note = (
         f"Light diffracted into higher orders of the SLM pixel grid (up to {frac:.1%} of the "
-        "laser power here) lands outside the predicted field, as weaker copies one field "
-        "width away; it is not in the evaluated map."
+        f"laser power here) is included as the neighbouring orders within {margin_um:.0f} um "
+        "of the predicted field (the map wrapped, times the pixel envelope); orders further "
+        "out are not evaluated."
     )
     return replace(assessment, notes=(*assessment.notes, note))

@@ -180,3 +180,27 @@ def test_zero_order_spot_is_the_focused_beam():
     assert pred.account.zero_order_mw == pytest.approx(0.1 * pred.account.retina_mw, rel=1e-3)
     r0, c0 = pred.grid.centre_index
     assert np.unravel_index(np.argmax(pred.irradiance_mw_per_mm2), pred.grid.shape) == (r0, c0)
+
+
+def test_neighbouring_orders_match_the_direct_far_field(rng):
+    # Source: Goodman, Introduction to Fourier Optics, 3rd ed., §4.2.2, eq. (4-28): the far
+    # field of a pixelated aperture is |sum c_n exp(-2 pi i u n p)|^2 sinc^2(a u), evaluated
+    # here directly (no FFT) at points beyond the predicted order.
+    from stimplan.holography.propagation import with_higher_orders
+
+    n, ff = 32, 0.7
+    system = make_system(n, fill_factor=ff, profile="flat")
+    phase = rng.uniform(0, 2 * np.pi, (n, n))
+    pred = predict_retina(phase, system, oversample=2)
+    ext, grid = with_higher_orders(pred.irradiance_mw_per_mm2, pred.grid, ff, 64)
+    assert grid.shape == (2 * n + 128, 2 * n + 128)
+    c = system.illumination.amplitude(system.slm).astype(np.float64) * np.exp(1j * phase)
+    pos = np.arange(n) - n / 2 + 0.5
+    s_n = 2 * n
+    centre = grid.rows // 2
+    for r, col in [(0, 0), (5, 100), (centre, centre), (centre + 70, centre - 3), (191, 40)]:
+        uy, ux = (r - centre) / s_n, (col - centre) / s_n  # in units of 1/pitch
+        field = np.exp(-2j * np.pi * uy * pos) @ c @ np.exp(-2j * np.pi * ux * pos) / s_n
+        env = (np.sinc(math.sqrt(ff) * uy) * np.sinc(math.sqrt(ff) * ux)) ** 2
+        direct = abs(field) ** 2 * ff**2 * env / grid.sample_area_mm2
+        assert ext[r, col] == pytest.approx(direct, rel=1e-4)

@@ -390,3 +390,60 @@ def predict_from_levels(level_index: np.ndarray, system, **kwargs) -> RetinalPre
     if levels.size and (levels.min() < 0 or levels.max() >= lut.levels):
         raise ConfigError("hologram.levels", int(levels.max()), f"in [0, {lut.levels - 1}]")
     return predict_retina(lut.phase_of_levels(levels), system, **kwargs)
+
+
+def with_higher_orders(
+    irradiance_mw_per_mm2: np.ndarray, grid: RetinalGrid, fill_factor: float, margin_samples: int
+) -> tuple[np.ndarray, RetinalGrid]:
+    """The predicted map extended by the neighbouring diffraction orders of the pixel grid.
+
+    The far field of a pixelated SLM is ``|C(u)|² sinc²(a u)``: ``|C|²`` is
+    periodic with one order (the predicted grid) as its period, and the
+    pixel-aperture envelope ``sinc²`` falls off across the orders. So the light
+    beyond the predicted field is the predicted map, wrapped around, times the
+    ratio of the envelope at the new place to the envelope at the old one. It
+    lands on the retina next to the pattern, and an exposure evaluation near
+    the field's edge must see it.
+
+    Parameters
+    ----------
+    irradiance_mw_per_mm2 : ndarray
+        Prediction on ``grid`` (one full order, zero order at the centre sample).
+    grid : RetinalGrid
+        The prediction grid.
+    fill_factor : float
+        SLM fill factor (the envelope is ``sinc²(sqrt(ff) k / n)``).
+    margin_samples : int
+        Samples added on every side, at most one order (``grid.rows``, ``grid.cols``).
+
+    Returns
+    -------
+    ndarray, float32
+        The extended map.
+    RetinalGrid
+        Its grid (same pitch, same centre).
+
+    References
+    ----------
+    .. [1] J. W. Goodman, *Introduction to Fourier Optics*, 3rd ed. (2005),
+       §4.2.2, eq. (4-28), and the periodicity of the DFT (§2.1).
+    """
+    f = float(np.sqrt(v.number("slm.fill_factor", fill_factor, lo=0, hi=1, lo_open=True)))
+    rows, cols = grid.shape
+    m = v.integer("margin_samples", margin_samples, lo=0, hi=min(rows, cols))
+    if m == 0:
+        return irradiance_mw_per_mm2, grid
+
+    def axis(n: int) -> tuple[np.ndarray, np.ndarray]:
+        k = np.arange(n + 2 * m) - (n + 2 * m) // 2  # offset from the zero order
+        wrapped = (k + n // 2) % n - n // 2
+        ratio = (np.sinc(f * k / n) / np.sinc(f * wrapped / n)) ** 2
+        return wrapped + n // 2, ratio.astype(np.float32)
+
+    src_r, ratio_r = axis(rows)
+    src_c, ratio_c = axis(cols)
+    ext = irradiance_mw_per_mm2[np.ix_(src_r, src_c)]
+    ext *= ratio_r[:, np.newaxis]
+    ext *= ratio_c[np.newaxis, :]
+    ext_grid = RetinalGrid((rows + 2 * m, cols + 2 * m), grid.pitch_x_um, grid.pitch_y_um)
+    return ext.astype(np.float32, copy=False), ext_grid
