@@ -88,6 +88,9 @@ def plan_summary(plan) -> dict:
             "mask_worst_ratio": None
             if plan.mask_exposure is None
             else plan.mask_exposure.worst_ratio,
+            "mask_equal_irradiance_worst_ratio": None
+            if plan.mask_exposure_equal_irradiance is None
+            else plan.mask_exposure_equal_irradiance.worst_ratio,
             "max_peak_frame_power_mw": {
                 "hologram": plan.max_laser_power_mw("hologram"),
                 "mask": plan.max_laser_power_mw("mask"),
@@ -158,6 +161,12 @@ def print_table(plan, file=None) -> None:
     if e["protocol"]:
         line += f"; protocol cap {e['protocol']['worst_ratio']:.3g} ({e['protocol']['verdict']})"
     print(line, file=file)
+    if e["mask_equal_irradiance_worst_ratio"] is not None:
+        print(
+            f"the mask, for the same ON-pixel irradiance: "
+            f"{e['mask_equal_irradiance_worst_ratio']:.3g} of the limit",
+            file=file,
+        )
     if e["edition"]:
         print(f"limits: {e['edition']}", file=file)
     print("CAUTION: " + CAUTIONS, file=file)

@@ -250,6 +250,18 @@ class Plan:
         return _assess(self.frames, self.stimuli, "mask", wl, self.spec)
 
     @cached_property
+    def mask_exposure_equal_irradiance(self) -> xp.ExposureAssessment | None:
+        """The timeline through the amplitude mask at the laser powers that give the ON
+        pixels the same irradiance as the holograms (:meth:`mask_power_for`); None
+        without an implant."""
+        if self.spec.implant is None:
+            return None
+        wl = self.spec.system.illumination.wavelength_nm
+        return _assess(
+            self.frames, self.stimuli, "mask", wl, self.spec, power_of=self.mask_power_for
+        )
+
+    @cached_property
     def stimulus_exposure(self) -> dict[int, xp.ExposureAssessment]:
         """Exposure of each hologram's frames on their own, by hologram index."""
         if len(self.holograms) == 1:
@@ -684,19 +696,22 @@ def _resolve_frame(fr, spec, plans) -> FramePlan:
     )
 
 
-def _assess(frames, plans, which: str, wavelength_nm: float, spec):
+def _assess(frames, plans, which: str, wavelength_nm: float, spec, power_of=None):
     """Exposure of the timeline.
 
     Each hologram is one (lazily read) map at 1 mW; every pulse carries its
-    frame's laser power as its scale, so frames of one hologram at any powers
-    share one map and the maps are read one at a time.
+    frame's laser power (or ``power_of(frame)``) as its scale, so frames of one
+    hologram at any powers share one map and the maps are read one at a time.
     """
     pulses_of: dict[int, list] = {}
     by_index = {p.hologram_index: p for p in plans.values()}
     for fr in frames:
         if not fr.lit or not fr.pulses:
             continue
-        k = np.float64(fr.power_mw / REFERENCE_POWER_MW)
+        power = fr.power_mw if power_of is None else power_of(fr)
+        if power is None:
+            continue
+        k = np.float64(power / REFERENCE_POWER_MW)
         pulses_of.setdefault(fr.hologram_index, []).extend(
             replace(p, scale=p.scale * float(k)) for p in fr.pulses
         )

@@ -175,22 +175,30 @@ def _sequence_figures(plan) -> list[tuple[str, str]]:
     if plan.exposure is not None:
         fig, ax = plt.subplots(figsize=(8, 3.4), layout="constrained")
         rules = list(plan.exposure.rules)
-        vals = [plan.exposure.rules[r].ratio for r in rules]
         labels = [r.replace("_", " ") for r in rules]
-        if plan.mask_exposure is not None:
-            mvals = [plan.mask_exposure.rules[r].ratio for r in rules]
-            x = np.arange(len(rules))
-            ax.bar(x - 0.2, vals, 0.4, label="hologram", color="tab:red")
-            ax.bar(x + 0.2, mvals, 0.4, label="mask, same powers", color="tab:gray")
-            ax.set_xticks(x, labels)
-            ax.legend()
-        else:
-            ax.bar(labels, vals, color="tab:red")
+        x = np.arange(len(rules), dtype=float)
+        vals = [max(plan.exposure.rules[r].ratio, 1e-12) for r in rules]
+        ax.bar(x - 0.2, vals, 0.4, label="hologram", color="tab:red")
+        mask_eq = plan.mask_exposure_equal_irradiance
+        if mask_eq is not None:
+            mvals = [max(mask_eq.rules[r].ratio, 1e-12) for r in rules]
+            ax.bar(x + 0.2, mvals, 0.4, label="mask, same ON-pixel irradiance", color="tab:gray")
         if plan.exposure.protocol is not None:
-            ax.bar(["protocol cap"], [plan.exposure.protocol.worst_ratio], color="tab:purple")
+            x = np.append(x, len(rules))
+            labels.append("protocol cap")
+            ax.bar(
+                [len(rules)],
+                [max(plan.exposure.protocol.worst_ratio, 1e-12)],
+                0.4,
+                color="tab:purple",
+                label="protocol cap (hologram)",
+            )
+        ax.set_xticks(x, labels)
+        ax.set_yscale("log")
         ax.axhline(1.0, color="k", ls="--", lw=1)
-        ax.text(0.01, 1.02, "limit", transform=ax.get_yaxis_transform())
-        ax.set_ylabel("exposure / limit")
+        ax.text(0.01, 1.1, "limit", transform=ax.get_yaxis_transform())
+        ax.set_ylabel("exposure / limit (log)")
+        ax.legend(fontsize=8)
         ax.set_title("exposure ratios (estimate, not a safety approval)")
         out.append(("Exposure ratios against the limit", _fig_to_data_uri(fig)))
     return out
@@ -261,6 +269,13 @@ def render_report(plan) -> str:
         if plan.mask_exposure is not None:
             rows.append(
                 ("mask at the same powers", f"{plan.mask_exposure.worst_ratio:.3g} of the limit")
+            )
+        if plan.mask_exposure_equal_irradiance is not None:
+            rows.append(
+                (
+                    "mask at the powers that give the same ON-pixel irradiance",
+                    f"{plan.mask_exposure_equal_irradiance.worst_ratio:.3g} of the limit",
+                )
             )
         parts.append(_table(rows))
         parts.append(f"<p class='caution'>{html.escape(e.caution)}</p>")

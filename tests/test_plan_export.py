@@ -131,3 +131,20 @@ def test_report_is_self_contained_with_cautions(plan):
     assert text.count("data:image/png;base64,") >= 5
     assert "not a safety approval" in text
     assert "src='http" not in text and 'src="http' not in text
+
+
+def test_mask_exposure_at_equal_irradiance_scales_with_its_power(tmp_path):
+    # Source: linearity of retinal exposure in laser power: the mask shown at the power
+    # that matches the hologram's ON-pixel irradiance has its same-power ratio times
+    # P_mask / P_hologram.
+    path = tmp_path / "one.toml"
+    text = small_sequence()
+    path.write_text(text[: text.index("[[steps]]", text.index("[[steps]]") + 1)])
+    plan = plan_sequence(load_sequence(path), progress=False)
+    assert len(plan.holograms) == 1
+    frame = next(f for f in plan.frames if f.lit)
+    factor = plan.mask_power_for(frame) / frame.power_mw
+    assert factor > 5  # the mask throws light away
+    same = plan.mask_exposure.worst_ratio
+    equal = plan.mask_exposure_equal_irradiance.worst_ratio
+    assert equal == pytest.approx(same * factor, rel=1e-6)
