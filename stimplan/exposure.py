@@ -181,7 +181,7 @@ _COUNT_THRESHOLD = 1e-4
 _TIME_TOL_S = 1e-9
 # assess_sequence: per-angle accumulators held at once (more angles take more passes), and
 # the samples per chunk of its elementwise accumulations.
-_ANGLE_BLOCK_BYTES = 512 * 2**20
+_ANGLE_BLOCK_BYTES = 256 * 2**20
 _CHUNK_SAMPLES = 1 << 16
 
 
