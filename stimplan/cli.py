@@ -10,7 +10,6 @@ from __future__ import annotations
 
 import argparse
 import json
-import math
 import sys
 from collections.abc import Sequence
 
@@ -98,17 +97,9 @@ def plan_summary(plan) -> dict:
         },
         "cautions": CAUTIONS,
     }
-    return _json_safe(out)
+    from .export import json_safe
 
-
-def _json_safe(x):
-    if isinstance(x, float) and not math.isfinite(x):
-        return str(x)
-    if isinstance(x, dict):
-        return {k: _json_safe(v) for k, v in x.items()}
-    if isinstance(x, list):
-        return [_json_safe(v) for v in x]
-    return x
+    return json_safe(out)
 
 
 def _num(x):

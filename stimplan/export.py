@@ -43,6 +43,7 @@ __all__ = [
     "load_export",
     "ExportBundle",
     "sha256_file",
+    "json_safe",
 ]
 
 EXPORT_FORMAT = "stimplan-export/1"
@@ -68,16 +69,16 @@ def sha256_file(path: str | Path, chunk: int = 1 << 20) -> str:
     return h.hexdigest()
 
 
-def _finite(x: Any) -> Any:
-    """JSON-safe numbers: inf and nan become strings."""
+def json_safe(x: Any) -> Any:
+    """JSON-safe values: inf and nan become strings, NumPy scalars Python numbers."""
     if isinstance(x, float) and not math.isfinite(x):
         return str(x)
     if isinstance(x, dict):
-        return {k: _finite(v) for k, v in x.items()}
+        return {k: json_safe(v) for k, v in x.items()}
     if isinstance(x, (list, tuple)):
-        return [_finite(v) for v in x]
+        return [json_safe(v) for v in x]
     if isinstance(x, np.generic):
-        return _finite(x.item())
+        return json_safe(x.item())
     return x
 
 
@@ -248,7 +249,7 @@ def export_plan(
             "acknowledgement": ack,
             "cautions": CAUTIONS,
         }
-        (tmp / "manifest.json").write_text(json.dumps(_finite(manifest), indent=1))
+        (tmp / "manifest.json").write_text(json.dumps(json_safe(manifest), indent=1))
     return Path(output)
 
 

@@ -10,13 +10,39 @@ frequency.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
+import scipy.sparse as sp
 
 from . import _validate as v
 
-__all__ = ["RetinalGrid"]
+__all__ = ["RetinalGrid", "interval_overlap"]
+
+
+def interval_overlap(
+    edges_out: np.ndarray, start_in: float, step_in: float, n_in: int
+) -> sp.csr_matrix:
+    """Fraction of each output interval covered by each input interval (1-D, sparse).
+
+    Output intervals ``[edges_out[k], edges_out[k+1]]`` (increasing), input
+    intervals ``[start_in + j step_in, start_in + (j+1) step_in]``; the weight
+    is the overlap length over the output interval's length. Area-weighted
+    resampling in 2-D is ``W_rows @ values @ W_cols.T``.
+    """
+    edges = np.asarray(edges_out, dtype=np.float64)
+    lo, hi = edges[:-1], edges[1:]
+    length = hi - lo
+    j0 = np.floor((lo - start_in) / step_in).astype(np.int64)
+    k = int(math.ceil(np.max(length) / step_in)) + 2
+    j = j0[:, None] + np.arange(k)
+    a = np.maximum(lo[:, None], start_in + j * step_in)
+    b = np.minimum(hi[:, None], start_in + (j + 1) * step_in)
+    w = np.clip(b - a, 0.0, None) / length[:, None]
+    ok = (w > 1e-12) & (j >= 0) & (j < n_in)
+    rows = np.broadcast_to(np.arange(len(lo))[:, None], j.shape)[ok]
+    return sp.csr_matrix((w[ok], (rows, j[ok])), shape=(len(lo), n_in))
 
 
 @dataclass(frozen=True)

@@ -23,7 +23,7 @@ from scipy import ndimage
 
 from . import _validate as v
 from .errors import ConfigError
-from .grid import RetinalGrid
+from .grid import RetinalGrid, interval_overlap
 
 __all__ = ["Target", "resample_coverage"]
 
@@ -183,25 +183,10 @@ def _bool_mask(field: str, a, shape) -> np.ndarray:
 
 
 def _overlap_matrix(n_src: int, pitch_src: float, n_dst: int, pitch_dst: float) -> sp.csr_matrix:
-    """Fraction of each destination sample covered by each source sample (1-D)."""
-    src_lo = (np.arange(n_src) - n_src // 2 - 0.5) * pitch_src
-    dst_lo = (np.arange(n_dst) - n_dst // 2 - 0.5) * pitch_dst
-    rows, cols, vals = [], [], []
-    j0 = 0
-    for i in range(n_dst):
-        a, b = dst_lo[i], dst_lo[i] + pitch_dst
-        j = max(0, int(np.floor((a - src_lo[0]) / pitch_src)) - 1)
-        j = max(j, j0 - 1, 0)
-        while j < n_src and src_lo[j] < b:
-            lo = max(a, src_lo[j])
-            hi = min(b, src_lo[j] + pitch_src)
-            if hi > lo:
-                rows.append(i)
-                cols.append(j)
-                vals.append((hi - lo) / pitch_dst)
-            j += 1
-        j0 = j
-    return sp.csr_matrix((vals, (rows, cols)), shape=(n_dst, n_src), dtype=np.float32)
+    """Fraction of each destination sample covered by each source sample (1-D, concentric)."""
+    edges = (np.arange(n_dst + 1) - n_dst // 2 - 0.5) * pitch_dst
+    start = (-(n_src // 2) - 0.5) * pitch_src
+    return interval_overlap(edges, start, pitch_src, n_src).astype(np.float32)
 
 
 def resample_coverage(values: np.ndarray, src: RetinalGrid, dst: RetinalGrid) -> np.ndarray:

@@ -15,16 +15,14 @@ image pixels it overlaps); rotated, by ``4 × 4`` supersampling.
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
-import scipy.sparse as sp
 
 from .. import _validate as v
 from ..errors import InputFileError
-from ..grid import RetinalGrid
+from ..grid import RetinalGrid, interval_overlap
 from ..io_images import read_scalar_image
 from .base import DEFAULT_SUPERSAMPLE, Figure, _check_grid, positive, register
 
@@ -53,28 +51,6 @@ def _normalised(field: str, path: str, arr: np.ndarray) -> np.ndarray:
             f"range [{float(out.min()):g}, {float(out.max()):g}]",
         )
     return out
-
-
-def _overlap_matrix(
-    edges_out: np.ndarray, start_in: float, step_in: float, n_in: int
-) -> sp.csr_matrix:
-    """Fraction of each output interval covered by each input interval.
-
-    Output intervals ``[edges_out[k], edges_out[k+1]]`` (increasing), input
-    intervals ``[start_in + j step_in, start_in + (j+1) step_in]``; the
-    weights are overlap length / output length.
-    """
-    lo, hi = edges_out[:-1], edges_out[1:]
-    length = hi - lo
-    j0 = np.floor((lo - start_in) / step_in).astype(np.int64)
-    k = int(math.ceil(np.max(length) / step_in)) + 2
-    j = j0[:, None] + np.arange(k)
-    a = np.maximum(lo[:, None], start_in + j * step_in)
-    b = np.minimum(hi[:, None], start_in + (j + 1) * step_in)
-    w = np.clip(b - a, 0.0, None) / length[:, None]
-    ok = (w > 1e-12) & (j >= 0) & (j < n_in)
-    rows = np.broadcast_to(np.arange(len(lo))[:, None], j.shape)[ok]
-    return sp.csr_matrix((w[ok], (rows, j[ok])), shape=(len(lo), n_in))
 
 
 @register
@@ -166,8 +142,8 @@ class ImageStimulus(Figure):
             x_edges = np.append(xs - px / 2.0, xs[-1] + px / 2.0) - self.center_x_um
             # rows run downwards: measure from the top, growing downwards
             y_edges = self.center_y_um - np.append(ys + py / 2.0, ys[-1] - py / 2.0)
-            wx = _overlap_matrix(x_edges, -self.width_um / 2.0, step, cols_img)
-            wy = _overlap_matrix(y_edges, -self.height_um / 2.0, step, rows_img)
+            wx = interval_overlap(x_edges, -self.width_um / 2.0, step, cols_img)
+            wy = interval_overlap(y_edges, -self.height_um / 2.0, step, rows_img)
             part = wy @ (wx @ img.T.astype(np.float64)).T
             out[r0:r1, c0:c1] = np.clip(part, 0.0, 1.0)
             return out
