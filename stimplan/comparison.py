@@ -128,6 +128,23 @@ def mask_for_implant(mask: AmplitudeMask, implant, margin: float = 1.1) -> Ampli
     )
 
 
+def project_mask_on_implant(
+    intensity: np.ndarray, grid, mask: AmplitudeMask, implant, power_mw: float, eye_transmission
+) -> tuple[MaskPrediction, AmplitudeMask]:
+    """The mask projector with its image sized to and centred on the implant (if any).
+
+    Returns the prediction and the mask as used (its field size filled in).
+    """
+    center = (0.0, 0.0)
+    if implant is not None:
+        mask = mask_for_implant(mask, implant)
+        center = (implant.center_x_um, implant.center_y_um)
+    mp = project_mask(
+        intensity, grid, mask, power_mw, eye_transmission=eye_transmission, field_center_um=center
+    )
+    return mp, mask
+
+
 def compare_on_implant(
     stimulus,
     implant,
@@ -182,15 +199,14 @@ def compare_on_implant(
     wl = system.illumination.wavelength_nm
     r_img = implant.readout(p_img.irradiance_mw_per_mm2, pg, wavelength_nm=wl)
     r_aw = implant.readout(p_aw.irradiance_mw_per_mm2, pg, wavelength_nm=wl)
-    m = mask_for_implant(mask or MASK_PRESETS["lcd"], implant)
     fine = stimulus.render(pg) if hasattr(stimulus, "render") else img_target.intensity_on(pg)
-    mp = project_mask(
+    mp, m = project_mask_on_implant(
         fine,
         pg,
-        m,
+        mask or MASK_PRESETS["lcd"],
+        implant,
         system.illumination.power_mw,
-        eye_transmission=system.eye.transmission,
-        field_center_um=(implant.center_x_um, implant.center_y_um),
+        system.eye.transmission,
     )
     r_mask = implant.readout(mp.irradiance_mw_per_mm2, pg, wavelength_nm=wl)
     return ImplantComparison(

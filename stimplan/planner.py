@@ -27,9 +27,8 @@ from functools import cached_property
 import numpy as np
 
 from . import exposure as xp
-from .baseline import project_mask
 from .cautions import CAUTIONS
-from .comparison import ProjectorFigures, mask_for_implant, pixel_figures
+from .comparison import ProjectorFigures, pixel_figures, project_mask_on_implant
 from .errors import ConfigError
 from .grid import RetinalGrid
 from .holography import Hologram, design_hologram, linear_phase_ramp
@@ -391,18 +390,13 @@ def _evaluate(name, stim, index, spec, system, holo, workers, design=None) -> St
     pred = holo.predict(system, oversample=spec.oversample, workers=workers)
     metrics = pattern_metrics(pred, holo.target)
     pg = pred.grid
-    mask = spec.mask
-    center = (0.0, 0.0)
-    if spec.implant is not None:
-        mask = mask_for_implant(mask, spec.implant)
-        center = (spec.implant.center_x_um, spec.implant.center_y_um)
-    mp = project_mask(
+    mp, mask = project_mask_on_implant(
         stim.render(pg),
         pg,
-        mask,
+        spec.mask,
+        spec.implant,
         REFERENCE_POWER_MW,
-        eye_transmission=system.eye.transmission,
-        field_center_um=center,
+        system.eye.transmission,
     )
     on = hfig = mfig = readout = None
     if spec.implant is not None:
