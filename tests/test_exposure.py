@@ -290,6 +290,7 @@ def test_pulse_rules_extended_source_repeated_pulse_binds():
 
 
 def test_pulse_rules_sparse_pulses_single_pulse_binds():
+    # Source: REFERENCES.md [pub], repeated pulses, rules 1 and 2; limits from memory.
     # Two 10 ms pulses 5 s apart: rule 2 gives 2 x 10 ms of energy against the 5.01 s limit.
     pulses = [ex.Pulse(0.0, 10.0), ex.Pulse(5000.0, 10.0)]
     res = ex.evaluate_train(pulses, 880.0, 1.5, 2.0)
@@ -302,6 +303,7 @@ def test_pulse_rules_sparse_pulses_single_pulse_binds():
 
 
 def test_pulses_of_different_widths_and_pauses():
+    # Source: REFERENCES.md [pub], rule 2 (average over any group of pulses); from memory.
     # A 1 s pulse train at 40 Hz (5 ms), a pause, then 20 ms pulses at 10 Hz at half power:
     # the scale multiplies the power; rule 2 includes the whole timeline.
     first = ex.periodic_pulses(5.0, frequency_hz=40.0, count=40)
@@ -400,6 +402,8 @@ def test_evaluate_map_of_a_uniform_disc_against_the_hand_limit():
 
 
 def test_small_hot_spot_is_found_where_it_is():
+    # Source: REFERENCES.md, extended-source evaluation: a point source is judged at
+    # alpha_min = 1.5 mrad with C_E = 1 [pub]; the 10 ms limit value is from memory.
     grid = RetinalGrid((256, 256), 2.0, 2.0)
     irr = np.full(grid.shape, 0.01, dtype=np.float32)
     p_spot = 0.5  # mW in one sample
@@ -441,6 +445,8 @@ def _full_field_limit_mw_per_mm2(t: float) -> float:
 
 
 def test_full_field_above_the_limit():
+    # Source: the task's check case (full field at 880 nm, 50 mW/mm^2 for 10 s); the limit
+    # is derived in _full_field_limit_mw_per_mm2 from the formulas (from memory).
     grid = RetinalGrid((256, 256), 10.0, 10.0)
     res = ex.evaluate_map(np.full(grid.shape, 50.0), grid, 880.0, 10.0)
     assert res.verdict == "above"
@@ -456,6 +462,7 @@ def test_full_field_above_the_limit():
 
 
 def test_full_field_within_the_limit_with_its_margin():
+    # Source: as above, at 0.1 mW/mm^2; the margin is the hand limit over 0.1 (from memory).
     grid = RetinalGrid((256, 256), 10.0, 10.0)
     irr = np.full(grid.shape, 0.1)
     res = ex.assess_sequence([ex.Frame(irr, (ex.Pulse(0.0, 10_000.0),))], grid, 880.0)
@@ -480,6 +487,7 @@ def test_full_field_blue_light_is_photochemical_over_gamma_ph():
 
 
 def test_two_frames_lighting_different_places():
+    # Source: REFERENCES.md [pub], rules evaluated per location; limits from memory.
     # Frames A and B alternate (each 10 ms at 30 Hz, 2 s); they light discs 600 um apart.
     grid = RetinalGrid((128, 128), 10.0, 10.0)
     x, y = grid.coords_um()
@@ -496,6 +504,8 @@ def test_two_frames_lighting_different_places():
 
 
 def test_protocol_cap_can_only_add_restrictions():
+    # common practice: a protocol cap adds a restriction beside the standard; the time
+    # average is computed by hand from the pulse train.
     grid = RetinalGrid((128, 128), 10.0, 10.0)
     irr = np.full(grid.shape, 8.0)
     pulses = ex.periodic_pulses(10.0, frequency_hz=30.0, duration_ms=1000.0)
@@ -537,6 +547,7 @@ def _hologram_like(grid: RetinalGrid) -> tuple[np.ndarray, np.ndarray]:
 
 
 def test_power_planning_round_trips():
+    # Source: linearity of irradiance and exposure in laser power (common practice).
     grid = RetinalGrid((128, 128), 10.0, 10.0)
     irr, on = _hologram_like(grid)
     pulses = ex.periodic_pulses(10.0, frequency_hz=30.0, duration_ms=1000.0)
@@ -558,6 +569,7 @@ def test_power_planning_round_trips():
 
 
 def test_hologram_and_mask_side_by_side():
+    # common practice: power planning is linear; expected values worked by hand.
     holo = ex.PerMilliwatt(0.5, 0.01, label="hologram")
     mask = ex.PerMilliwatt(0.05, 0.004, label="amplitude mask")
     cmp_ = ex.compare_power(2.0, holo, mask, laser_max_mw=100.0)
