@@ -134,6 +134,10 @@ def project_mask_on_implant(
     """The mask projector with its image sized to and centred on the implant (if any).
 
     Returns the prediction and the mask as used (its field size filled in).
+
+    References
+    ----------
+    .. [1] W. den Boer, *Active Matrix Liquid Crystal Displays* (2005), §6.1.
     """
     center = (0.0, 0.0)
     if implant is not None:
@@ -180,6 +184,11 @@ def compare_on_implant(
     Returns
     -------
     ImplantComparison
+
+    References
+    ----------
+    .. [1] Pasienski & DeMarco (2008); Di Leonardo et al. (2007); W. den Boer, *Active Matrix Liquid
+       Crystal Displays* (2005), §6.1.
     """
     grid = system.design_grid()
     implant.check_fits(grid)

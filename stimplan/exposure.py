@@ -704,6 +704,11 @@ class CornealMPE:
         """Mean retinal irradiance of a uniform source image at the limit, mW/mm^2.
 
         The image diameter is ``max(alpha, alpha_min) * f_eye``.
+
+        References
+        ----------
+        .. [1] ICNIRP (2013); the cornea-to-retina conversion d = alpha f_eye, E_r = tau P / (pi d^2
+           / 4) (REFERENCES.md).
         """
         return retinal_irradiance_mw_per_mm2(self.irradiance_w_per_m2, self.alpha_mrad, eye)
 
@@ -811,7 +816,12 @@ def retinal_image_diameter_um(alpha_mrad: float, eye: EyeModel = HUMAN_EYE) -> f
 
 
 def power_into_eye_mw(corneal_irradiance_w_per_m2: float) -> float:
-    """Power through the 7 mm limiting aperture, ``P = E * A_7mm``, in mW."""
+    """Power through the 7 mm limiting aperture, ``P = E * A_7mm``, in mW.
+
+    References
+    ----------
+    .. [1] ICNIRP, *Health Phys.* 105, 271 (2013): limits averaged over the 7 mm aperture.
+    """
     e = v.number("corneal_irradiance_w_per_m2", corneal_irradiance_w_per_m2, lo=0.0)
     return e * LIMITING_APERTURE_AREA_M2 * 1e3
 
@@ -829,6 +839,11 @@ def retinal_irradiance_mw_per_mm2(
         Angular subtense (below alpha_min the image is taken as alpha_min).
     eye : EyeModel
         Focal length and transmission.
+
+    References
+    ----------
+    .. [1] ICNIRP (2013); the cornea-to-retina conversion d = alpha f_eye, E_r = tau P / (pi d^2 /
+       4) (REFERENCES.md).
     """
     eye = _check_eye(eye)
     p_mw = power_into_eye_mw(corneal_irradiance_w_per_m2) * eye.transmission
@@ -839,7 +854,12 @@ def retinal_irradiance_mw_per_mm2(
 def retinal_power_limit_mw(
     wavelength_nm: float, duration_s: float, alpha_mrad: float, eye: EyeModel = HUMAN_EYE
 ) -> float:
-    """The MPE as the mean power reaching the retina, ``tau * E_MPE * A_7mm`` in mW."""
+    """The MPE as the mean power reaching the retina, ``tau * E_MPE * A_7mm`` in mW.
+
+    References
+    ----------
+    .. [1] ICNIRP (2013); IEC 60825-1:2014, Annex A.
+    """
     return corneal_mpe(wavelength_nm, duration_s, alpha_mrad).retinal_power_mw(eye)
 
 
@@ -943,6 +963,10 @@ def periodic_pulses(
     Returns
     -------
     list of Pulse
+
+    References
+    ----------
+    .. [1] ICNIRP (2013): repeated-pulse rules are applied to the actual pulse timeline.
     """
     w = v.number("pulse_ms", pulse_ms, lo=0.0, lo_open=True)
     if (period_ms is None) == (frequency_hz is None):
@@ -1591,6 +1615,10 @@ def disc_power_map(irradiance_mw_per_mm2: Any, grid: RetinalGrid, diameter_um: f
     sample is a point: the power is the sample's irradiance times the disc
     area (the irradiance is taken as uniform within a sample). Light outside
     the grid is taken as zero.
+
+    References
+    ----------
+    .. [1] ICNIRP (2013); IEC 60825-1:2014, Annex A (varying acceptance angle for extended sources).
     """
     grid = _check_grid(grid)
     irr = _check_map(irradiance_mw_per_mm2, grid, "irradiance_mw_per_mm2")
@@ -1610,6 +1638,10 @@ def max_disc_power(
     -------
     power_mw, x_um, y_um : float
         The power and the retinal position of the disc centre.
+
+    References
+    ----------
+    .. [1] ICNIRP (2013); IEC 60825-1:2014, Annex A (varying acceptance angle).
     """
     d = retinal_image_diameter_um(alpha_mrad, eye)
     pm = disc_power_map(irradiance_mw_per_mm2, grid, d)
@@ -1631,6 +1663,10 @@ def default_acceptance_angles_mrad(
     ends included), plus 5 mrad (where C_P starts), alpha_max of each pulse
     duration given, alpha_max of the whole exposure and, for 400-600 nm
     exposures over 10 s, gamma_ph of the whole exposure.
+
+    References
+    ----------
+    .. [1] ICNIRP (2013): alpha_min = 1.5 mrad, alpha_max depends on the duration (from memory).
     """
     n = v.integer("n_log", n_log, lo=2)
     angles = set(np.round(np.geomspace(ALPHA_MIN_MRAD, 100.0, n), 6).tolist())
@@ -2524,6 +2560,10 @@ def evaluate_map(
     compared with the limit for that angle. ``result.worst`` gives the worst
     ratio with ``x_um``, ``y_um``, ``alpha_mrad`` and the rule;
     ``result.angles`` the figures per angle. See :func:`assess_sequence`.
+
+    References
+    ----------
+    .. [1] ICNIRP (2013); IEC 60825-1:2014, Annex A.
     """
     t = _duration(duration_s)
     return assess_sequence(
@@ -2677,6 +2717,10 @@ def plan_power(
         that power is ``worst_ratio_per_mw * laser_power_mw``; the largest power
         within the standard is ``1 / worst_ratio_per_mw`` and, with a protocol,
         the smaller of that and ``1 / protocol_ratio_per_mw``.
+
+    References
+    ----------
+    .. [1] common practice: irradiance and exposure are linear in laser power.
     """
     target = v.number(
         "target_irradiance_mw_per_mm2", target_irradiance_mw_per_mm2, lo=0.0, lo_open=True
@@ -2754,6 +2798,10 @@ def compare_power(
         Both plans, the ratio of laser powers needed (baseline / hologram) and
         the ratio of the largest irradiances within every limit (hologram /
         baseline).
+
+    References
+    ----------
+    .. [1] common practice: irradiance and exposure are linear in laser power.
     """
     h = plan_power(target_irradiance_mw_per_mm2, hologram, laser_max_mw=laser_max_mw)
     b = plan_power(target_irradiance_mw_per_mm2, baseline, laser_max_mw=laser_max_mw)

@@ -67,6 +67,11 @@ def pixel_states(
     implant : Implant
     threshold : float
         A pixel is ON when its cell's mean stimulus is at least this, in (0, 1].
+
+    References
+    ----------
+    .. [1] H. Lorach et al., *Nat. Med.* 21, 476 (2015) (pixels as the sampling unit of prosthetic
+       vision).
     """
     thr = v.number("implant_target.threshold", threshold, lo=0, hi=1, lo_open=True)
     t = v.finite_array("stimulus", intensity, shape=grid.shape, lo=0.0, hi=1.0)
@@ -113,6 +118,10 @@ def implant_target(
     ------
     ConfigError
         If no pixel is ON.
+
+    References
+    ----------
+    .. [1] M. Pasienski and B. DeMarco, *Opt. Express* 16, 2176 (2008) (signal and noise regions).
     """
     states = pixel_states(intensity, grid, implant, threshold=threshold)
     if states.n_on == 0:

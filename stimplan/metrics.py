@@ -65,7 +65,12 @@ def uniformity(values: np.ndarray) -> float:
 
 
 def coefficient_of_variation(values: np.ndarray) -> float:
-    """Standard deviation over mean (``nan`` for a zero mean)."""
+    """Standard deviation over mean (``nan`` for a zero mean).
+
+    References
+    ----------
+    .. [1] J. W. Goodman, *Speckle Phenomena in Optics* (2007), §3.1 (contrast as std/mean).
+    """
     a = np.asarray(values, dtype=np.float64).ravel()
     if a.size == 0:
         raise ConfigError("values", a, "at least one value")
@@ -128,6 +133,11 @@ def spot_powers(
         Spot centres ``(x, y)`` in µm.
     radius_um : float
         Integration radius, µm.
+
+    References
+    ----------
+    .. [1] R. Di Leonardo, F. Ianni and G. Ruocco, *Opt. Express* 15, 1913 (2007) (spot intensities
+       of trap arrays).
     """
     r = v.number("radius_um", radius_um, lo=0, lo_open=True)
     c = np.asarray(centres_um, dtype=np.float64).reshape(-1, 2)
@@ -184,6 +194,11 @@ def pattern_metrics(prediction, target) -> PatternMetrics:
     prediction : RetinalPrediction
     target : Target
         On the design grid, concentric with the prediction grid.
+
+    References
+    ----------
+    .. [1] Di Leonardo et al., *Opt. Express* 15, 1913 (2007); J. R. Fienup, *Appl. Opt.* 21, 2758
+       (1982); Goodman, *Speckle Phenomena in Optics* (2007), §3.1.
     """
     from scipy import ndimage
 

@@ -44,6 +44,10 @@ def translation_between(a, b, grid, *, tolerance: float = 0.02) -> tuple[float, 
         The design grid.
     tolerance : float
         Largest accepted mean absolute difference (intensities in 0..1).
+
+    References
+    ----------
+    .. [1] J. W. Goodman, *Introduction to Fourier Optics*, 3rd ed. (2005), §2.1.3 (shift theorem).
     """
     if type(a) is not type(b):
         return None

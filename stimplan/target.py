@@ -198,6 +198,10 @@ def resample_coverage(values: np.ndarray, src: RetinalGrid, dst: RetinalGrid) ->
     Returns
     -------
     ndarray, float32, shape ``dst.shape``
+
+    References
+    ----------
+    .. [1] common practice: area-weighted (conservative) resampling between nested grids.
     """
     wy = _overlap_matrix(src.rows, src.pitch_y_um, dst.rows, dst.pitch_y_um)
     wx = _overlap_matrix(src.cols, src.pitch_x_um, dst.cols, dst.pitch_x_um)

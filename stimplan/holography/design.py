@@ -166,6 +166,12 @@ def design_hologram(
     Returns
     -------
     Hologram
+
+    References
+    ----------
+    .. [1] R. W. Gerchberg and W. O. Saxton, *Optik* 35, 237 (1972); M. Pasienski and B. DeMarco,
+       *Opt. Express* 16, 2176 (2008); J. W. Goodman, *Introduction to Fourier Optics*, 3rd ed.
+       (2005), §2.1.3 (shift theorem).
     """
     st = settings or IftaSettings()
     grid = system.design_grid()

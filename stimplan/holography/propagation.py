@@ -80,7 +80,13 @@ def far_field(slm_field: np.ndarray, *, workers: int = -1) -> np.ndarray:
 
 
 def near_field(far: np.ndarray, *, workers: int = -1) -> np.ndarray:
-    """Inverse of :func:`far_field` (centred, unitary)."""
+    """Inverse of :func:`far_field` (centred, unitary).
+
+    References
+    ----------
+    .. [1] J. W. Goodman, *Introduction to Fourier Optics*, 3rd ed. (2005), §2.1 (unitary DFT,
+       Parseval).
+    """
     f = np.asarray(far).astype(np.complex64, copy=False)
     out = sfft.ifft2(sfft.ifftshift(f), norm="ortho", workers=workers, overwrite_x=True)
     return sfft.fftshift(out)
@@ -380,7 +386,13 @@ def predict_retina(
 
 
 def predict_from_levels(level_index: np.ndarray, system, **kwargs) -> RetinalPrediction:
-    """Predict the retina from an image of SLM level indices (see :func:`predict_retina`)."""
+    """Predict the retina from an image of SLM level indices (see :func:`predict_retina`).
+
+    References
+    ----------
+    .. [1] J. W. Goodman, *Introduction to Fourier Optics*, 3rd ed. (2005), §4.2 and §7.2 (phase
+       levels of an SLM).
+    """
     from .quantize import grey_map_for
 
     lut = grey_map_for(system.slm)
