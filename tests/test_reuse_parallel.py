@@ -87,6 +87,7 @@ def test_thread_batch_equals_serial_run():
 def test_local_cluster_batch_equals_serial_run():
     # common practice: a dask.distributed cluster gives the serial results (same seeds)
     import distributed  # in the test extras
+
     spec = _spec()
     serial = plan_sequence(spec, progress=False, scheduler="serial")
     with (
