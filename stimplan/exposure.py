@@ -17,7 +17,9 @@ What this module does
 * :func:`disc_power_map` and :func:`max_disc_power` integrate a predicted
   retinal irradiance map over discs of a given angular diameter (FFT
   convolution with an area-weighted disc), the core of the
-  varying-acceptance-angle method for extended sources.
+  varying-acceptance-angle method for extended sources; long sequences of
+  large maps use the exact disc sums and the search of
+  :mod:`stimplan.disc_search`.
 * :func:`assess_sequence` evaluates a whole sequence of frames (irradiance
   maps and their pulses) against every rule at a set of acceptance angles,
   builds the dose and peak-irradiance maps, and gives a verdict, optionally
@@ -70,6 +72,8 @@ import scipy.fft as sfft
 
 from . import _validate as v
 from .cautions import CAUTION_SHORT, CAUTIONS, EDITION, EDITION_SHORT
+from .disc_search import DiscSums, Pooled, prefix_sums, search_max
+from .disc_search import disc_kernel as _disc_kernel
 from .errors import ConfigError
 from .grid import RetinalGrid
 
@@ -181,7 +185,9 @@ _COUNT_THRESHOLD = 1e-4
 _TIME_TOL_S = 1e-9
 # assess_sequence: per-angle accumulators held at once (more angles take more passes), and
 # the samples per chunk of its elementwise accumulations.
-_ANGLE_BLOCK_BYTES = 256 * 2**20
+#: Maps of more samples than this find each disc-power maximum by a coarse-to-fine
+#: search (:func:`stimplan.disc_search.search_max`); smaller ones by a full FFT map.
+_SEARCH_MIN_SAMPLES = 1 << 20
 _CHUNK_SAMPLES = 1 << 16
 
 
@@ -1472,32 +1478,6 @@ def evaluate_train(
 # --------------------------------------------------------------------------
 
 
-def _disc_kernel(
-    diameter_um: float, px: float, py: float, max_half_rows: int, max_half_cols: int
-) -> np.ndarray:
-    """Area-weighted disc: each sample holds (area of its cell inside the disc) in mm^2."""
-    r = diameter_um / 2.0
-    hy = min(int(math.ceil(r / py + 0.5)), max_half_rows)
-    hx = min(int(math.ceil(r / px + 0.5)), max_half_cols)
-    yy = np.abs(np.arange(-hy, hy + 1) * py)
-    xx = np.abs(np.arange(-hx, hx + 1) * px)
-    near = np.hypot(np.maximum(yy - py / 2, 0)[:, None], np.maximum(xx - px / 2, 0)[None, :])
-    far = np.hypot((yy + py / 2)[:, None], (xx + px / 2)[None, :])
-    frac = (far <= r).astype(np.float64)
-    edge = (near < r) & (far > r)
-    if np.any(edge):
-        ry, rx = np.nonzero(edge)
-        m = len(ry)
-        ns = 32 if m < 4000 else 16
-        sub = (np.arange(ns) + 0.5) / ns - 0.5
-        cy = (ry - hy) * py
-        cx = (rx - hx) * px
-        y = cy[:, None, None] + sub[None, :, None] * py
-        x = cx[:, None, None] + sub[None, None, :] * px
-        frac[ry, rx] = np.mean((x * x + y * y) <= r * r, axis=(1, 2))
-    return (frac * (px * py * 1e-6)).astype(np.float32)
-
-
 class _DiscIntegrator:
     """Disc power maps on one grid, zero-padded for the largest disc.
 
@@ -2096,14 +2076,19 @@ class _AngleMaps:
 
     max_power_mw: float
     locations: list[tuple[int, int]]
-    power_at: np.ndarray  # (location, map group), float32
+    power_at: np.ndarray  # (location, map group), float64
 
 
 class _MapSweep:
-    """The maps of a sequence, visited one at a time.
+    """The maps of a sequence, visited one at a time, twice.
 
-    Holds the dose and peak maps (built on the first pass), the current map and
-    its spectrum, and the per-angle accumulators of one block of angles.
+    Pass 1 (:meth:`first_pass`) reads each map once: it adds it to the dose and
+    peak maps and finds, for every acceptance angle, the centre and value of
+    its largest disc power. The evaluation locations are then final: those
+    maxima, the maximum of each angle's disc-energy map (the disc power of the
+    dose map, by linearity) and the samples of largest dose and peak
+    irradiance. Pass 2 (:meth:`second_pass`) reads each lit map again and sums
+    its discs exactly at every location.
     """
 
     def __init__(
@@ -2113,41 +2098,37 @@ class _MapSweep:
         weight_s: np.ndarray,
         max_scale: np.ndarray,
         overlap: bool,
-        max_diameter_um: float,
+        diameters_um: Sequence[float],
     ):
         self.groups, self.grid = groups, grid
         self.weight_s, self.max_scale, self.overlap = weight_s, max_scale, overlap
-        self.integ = _DiscIntegrator(grid, max_diameter_um)
+        self.diameters = list(diameters_um)
+        self.integ = _DiscIntegrator(grid, max(self.diameters))
+        self.search = grid.rows * grid.cols > _SEARCH_MIN_SAMPLES
+        self.sums = [
+            None
+            if self.integ.is_point(d)
+            else DiscSums(d, grid.pitch_x_um, grid.pitch_y_um, grid.shape)
+            for d in self.diameters
+        ]
         self.dose = np.zeros(grid.shape, dtype=np.float64)
         self.peak = np.zeros(grid.shape, dtype=np.float64)
-        self.lit: list[int] = []  # groups with light, in order (known after the first pass)
-        self.fixed: set[tuple[int, int]] = set()
-        self._first = True
-        self._current: tuple[int, np.ndarray | None, np.ndarray | None] | None = None
+        self.lit: list[int] = []  # groups with light, in order
+        self._held: tuple[int, np.ndarray] | None = None
 
     def _lit_frames(self, gi: int) -> list[int]:
         return [k for k in self.groups[gi].frames if self.max_scale[k] > 0]
 
-    def _get(
-        self, gi: int, spectrum: bool, irradiance: bool = True
-    ) -> tuple[np.ndarray | None, np.ndarray | None]:
-        """The map of group ``gi`` and/or its spectrum, reusing the current ones if they are it.
-
-        The map is read only if it, or a spectrum not held, is needed; it is
-        not kept unless ``irradiance``.
-        """
-        cur = self._current
-        irr, spec = (cur[1], cur[2]) if cur is not None and cur[0] == gi else (None, None)
-        self._current = cur = None  # free the previous map before reading the next
-        if irr is None and (irradiance or (spectrum and spec is None)):
+    def _read(self, gi: int) -> np.ndarray:
+        held = self._held
+        self._held = None  # free the previous map before reading the next
+        if held is not None and held[0] == gi:
+            irr = held[1]
+        else:
             g = self.groups[gi]
             irr = np.ascontiguousarray(_load_map(g.source, self.grid.shape, g.field))
-        if spectrum and spec is None:
-            spec = self.integ.spectrum(irr)
-        if not irradiance:
-            irr = None
-        self._current = (gi, irr, spec)
-        return irr, spec
+        self._held = (gi, irr)
+        return irr
 
     def _accumulate(self, gi: int, irr: Any) -> bool:
         """Add the frames of group ``gi`` to the dose and peak maps; True if it is lit."""
@@ -2161,100 +2142,71 @@ class _MapSweep:
                     _max_product(self.peak, irr, self.max_scale[k])
         return bool(self._lit_frames(gi)) and bool(np.any(irr))
 
-    def block(self, diameters_um: Sequence[float]) -> list[_AngleMaps]:
-        """Two passes over the maps for a block of angles.
-
-        Pass 1 computes each lit map's disc-power maps one at a time, records
-        their maxima and accumulates the disc-energy maps. After the last map's
-        contribution the evaluation locations of an angle are final, so the last
-        map is sampled there at once. Pass 2 recomputes the other maps'
-        disc-power maps and samples them, in reverse order so that the next
-        block starts with the map (and spectrum) still held.
-        """
-        nb = len(diameters_um)
-        need_spec = not all(self.integ.is_point(d) for d in diameters_um)
-        need_irr = any(self.integ.is_point(d) for d in diameters_um)
-        energy: list[np.ndarray | None] = [
-            np.zeros(self.grid.shape, dtype=np.float64) for _ in range(nb)
-        ]
-        max_power = [0.0] * nb
-        peaks: list[set[tuple[int, int]]] = [set() for _ in range(nb)]
-        out: list[_AngleMaps | None] = [None] * nb
-        where: list[tuple[np.ndarray, ...]] = [()] * nb
-        first = self._first
-        order = range(len(self.groups)) if first else self.lit
-        last = order[-1] if len(order) else -1
-        done = -1  # the group sampled in pass 1
-
-        def finish(j: int) -> None:
-            e = energy[j]
-            locs = set(self.fixed) | peaks[j]
-            if self.lit:
-                locs.add(_peak_location(e))
-            energy[j] = None
-            ordered = sorted(locs)
-            table = np.zeros((len(ordered), len(self.groups)), dtype=np.float32)
-            out[j] = _AngleMaps(float(max_power[j]), ordered, table)
-            where[j] = tuple(np.array(ordered, dtype=np.intp).T)
-
-        for gi in order:
-            if first:
-                irr, _ = self._get(gi, False)
-                is_lit = self._accumulate(gi, irr)
-                if gi == last:
-                    self.fixed = {_peak_location(self.dose), _peak_location(self.peak)}
-                if not is_lit:
-                    continue
-                self.lit.append(gi)
-            irr, spec = self._get(gi, need_spec, need_irr)
-            lit_frames = self._lit_frames(gi)
-            for j, d in enumerate(diameters_um):
-                dm = self.integ.power_map_mw(irr, d, spec)
-                row, col = _peak_location(dm)
-                peaks[j].add((row, col))
-                top = float(dm[row, col])
-                for k in lit_frames:
-                    max_power[j] = max(max_power[j], top * self.max_scale[k])
-                    _add_product(energy[j], dm, self.weight_s[k])
-                if gi == last:
-                    finish(j)
-                    out[j].power_at[:, gi] = dm[where[j]]
-                    done = gi
-                del dm
-        self._first = False
-        for j in range(nb):
-            if out[j] is None:  # the last group is unlit (first pass), or nothing is lit
-                finish(j)
-        for gi in reversed(self.lit):
-            if gi == done:
-                continue
-            irr, spec = self._get(gi, need_spec, need_irr)
-            for j, d in enumerate(diameters_um):
-                dm = self.integ.power_map_mw(irr, d, spec)
-                out[j].power_at[:, gi] = dm[where[j]]
-                del dm
-        self.integ.forget()
-        return out  # type: ignore[return-value]
-
-    def blocks(self, diameters_um: Sequence[float]) -> list[list[int]]:
-        """Angles (indices) in blocks whose accumulators fit in :data:`_ANGLE_BLOCK_BYTES`."""
-        n = self.grid.rows * self.grid.cols
-        out: list[list[int]] = []
-        used = 0
-        for j, d in enumerate(diameters_um):
-            # energy map (float64) and kernel spectrum
-            cost = 8 * n + (0 if self.integ.is_point(d) else self.integ.spectrum_nbytes)
-            if out and used + cost <= _ANGLE_BLOCK_BYTES:
-                out[-1].append(j)
-                used += cost
+    def _maxima(self, irr: np.ndarray) -> list[tuple[int, int, float]]:
+        """Per angle, the centre and value of the largest disc power of ``irr``."""
+        out = []
+        prefix = prefix_sums(irr)
+        pooled = Pooled(irr) if self.search else None
+        spec = None
+        for d, sums in zip(self.diameters, self.sums, strict=True):
+            if sums is None:  # a point: the sample's irradiance times the disc area
+                r, c = _peak_location(irr)
+                out.append((r, c, float(irr[r, c]) * _point_area_mm2(d)))
+            elif self.search:
+                g = self.grid
+                out.append(search_max(irr, prefix, sums, g.pitch_x_um, g.pitch_y_um, d, pooled))
             else:
-                out.append([j])
-                used = cost
+                f32 = irr if irr.dtype == np.float32 else irr.astype(np.float32)
+                if spec is None:
+                    spec = self.integ.spectrum(f32)
+                r, c = _peak_location(self.integ.power_map_mw(f32, d, spec))
+                out.append((r, c, float(sums.at(prefix, irr, [r], [c])[0])))
         return out
 
-    def release(self) -> None:
-        """Drop the current map and spectrum."""
-        self._current = None
+    def first_pass(self) -> list[_AngleMaps]:
+        """Read every map once; the evaluation locations and maxima of every angle."""
+        nd = len(self.diameters)
+        max_power = [0.0] * nd
+        locs: list[set[tuple[int, int]]] = [set() for _ in range(nd)]
+        for gi in range(len(self.groups)):
+            irr = self._read(gi)
+            if not self._accumulate(gi, irr):
+                continue
+            self.lit.append(gi)
+            top = max(self.max_scale[k] for k in self._lit_frames(gi))
+            for j, (r, c, value) in enumerate(self._maxima(irr)):
+                locs[j].add((r, c))
+                max_power[j] = max(max_power[j], value * top)
+        self._held = None
+        fixed = {_peak_location(self.dose), _peak_location(self.peak)}
+        if self.lit:
+            for j, (r, c, _) in enumerate(self._maxima(self.dose)):
+                locs[j].add((r, c))  # the disc-energy maximum
+        out = []
+        for j in range(nd):
+            ordered = sorted(locs[j] | fixed)
+            table = np.zeros((len(ordered), len(self.groups)), dtype=np.float64)
+            out.append(_AngleMaps(float(max_power[j]), ordered, table))
+        self.integ.forget()
+        return out
+
+    def second_pass(self, angles: list[_AngleMaps]) -> None:
+        """Fill each angle's table with the exact disc power of every lit map at its locations."""
+        for gi in reversed(self.lit):
+            irr = self._read(gi)
+            prefix = prefix_sums(irr)
+            for a, d, sums in zip(angles, self.diameters, self.sums, strict=True):
+                rr, cc = np.array(a.locations, dtype=np.intp).T
+                if sums is None:
+                    a.power_at[:, gi] = irr[rr, cc].astype(np.float64) * _point_area_mm2(d)
+                else:
+                    a.power_at[:, gi] = sums.at(prefix, irr, rr, cc)
+            del prefix
+        self._held = None
+
+
+def _point_area_mm2(diameter_um: float) -> float:
+    return math.pi * (diameter_um * 1e-3) ** 2 / 4.0
 
 
 def assess_sequence(
@@ -2306,26 +2258,30 @@ def assess_sequence(
     whole sequence (a larger disc than any shorter window's, so it errs
     high).
 
+    Each frame's largest disc power and its centre are found, on maps of up
+    to :data:`_SEARCH_MIN_SAMPLES` samples, from the full disc-power map (FFT
+    convolution); on larger maps by the coarse-to-fine search of
+    :func:`stimplan.disc_search.search_max` (a pooled disc-power map, then
+    exact disc sums around its best local maxima), which can miss a maximum
+    narrower than a pooled cell by a little (under 0.2 % on fully developed
+    speckle in the tests). The disc-energy map of an angle is the disc-power
+    map of the dose map (the disc integral is linear), so its maximum is
+    found the same way. At every evaluation location the disc powers are
+    exact sums of the area-weighted kernel (row prefix sums, float64).
+
     Memory does not grow with the number of frames. Frames that show one map
     (same key, same array, same callable, or callables returning the same
     array object) are treated as one map; to learn this, a lazy frame without
-    a key is called once beforehand. The angles are taken in blocks whose
-    accumulators (per angle a float64 disc-energy map and the spectrum of the
-    disc kernel) fit in 512 MiB, at least one angle per block. For each
-    block, pass 1 reads the maps one at a time (the first pass also builds
-    the dose and peak maps), computes the map's spectrum once and from it the
-    disc-power map of each angle of the block in turn, records its maximum
-    and adds it to that angle's disc-energy map; the last map is sampled at
-    the evaluation locations as soon as they are final. Pass 2 reads the
-    other maps again, recomputes their disc-power maps and samples them.
-    Besides the dose and peak maps and the block's accumulators, one map, its
-    spectrum and the FFT work arrays of one disc-power map are alive at a
-    time, plus per angle a table of disc powers (locations x distinct maps).
-    Each distinct map is read and transformed twice per block; the kernels
-    are transformed once per block. The results equal those of holding
-    every map, except that the dose and disc-energy sums are formed map by
-    map: when frames of one map are interleaved with frames of others, the
-    dose map can differ from frame-order summation in the last bit.
+    a key is called once beforehand. The maps are then read twice, one at a
+    time: pass 1 adds each to the dose and peak maps and finds its maxima for
+    every angle; pass 2 sums each lit map's discs at the evaluation
+    locations. Besides the dose and peak maps, one map, its row prefix sums
+    (float64) and its pooled or transformed copies are alive at a time, plus
+    per angle a table of disc powers (locations x distinct maps). The
+    results do not depend on the order of the frames, except that the dose
+    sums are formed map by map: when frames of one map are interleaved with
+    frames of others, the dose map can differ from frame-order summation in
+    the last bit.
 
     References
     ----------
@@ -2379,37 +2335,34 @@ def assess_sequence(
     group_of = np.empty(n_f, dtype=np.int64)
     for gi, g in enumerate(groups):
         group_of[g.frames] = gi
-    sweep = _MapSweep(groups, grid, weight_s, max_scale, overlap, max(diameters))
+    sweep = _MapSweep(groups, grid, weight_s, max_scale, overlap, diameters)
     rules = {r: _empty_rule(r, alphas[0]) for r in RULES}
     angle_rows: list[AngleResult] = []
-    lit_frames: np.ndarray | None = None
-    for block in sweep.blocks(diameters):
-        results = sweep.block([diameters[j] for j in block])
-        if lit_frames is None:
-            lit_groups = np.zeros(len(groups), dtype=bool)
-            lit_groups[sweep.lit] = True
-            lit_frames = np.flatnonzero(lit_groups[group_of] & (max_scale > 0))
-        for j, res in zip(block, results, strict=True):
-            a, d_um = eval_angles[j], diameters[j]
-            hazards = []
-            if a in alphas:
-                hazards.append("thermal")
-            if photo and a == gamma:
-                hazards.append("photochemical")
-            at_angle = {r: _empty_rule(r, a) for r in RULES}
-            for n, (row, col) in enumerate(res.locations):
-                frame_power = np.zeros(n_f)
-                frame_power[lit_frames] = res.power_at[n, group_of[lit_frames]]
-                powers = frame_power[frame_idx] * scales
-                x, y = grid.point_of(row, col)
-                for hz in hazards:
-                    out = _timeline_rules(starts, durs, powers, lam, a, eye, hz)
-                    out = {r: replace(out[r], x_um=float(x), y_um=float(y)) for r in RULES}
-                    at_angle = _merge_rules(at_angle, out)
-            rules = _merge_rules(rules, at_angle)
-            b = _binding(at_angle)
-            angle_rows.append(AngleResult(a, d_um, res.max_power_mw, b.ratio, b.rule, b.hazard))
-    sweep.release()
+    results = sweep.first_pass()
+    sweep.second_pass(results)
+    lit_groups = np.zeros(len(groups), dtype=bool)
+    lit_groups[sweep.lit] = True
+    lit_frames = np.flatnonzero(lit_groups[group_of] & (max_scale > 0))
+    for j, res in enumerate(results):
+        a, d_um = eval_angles[j], diameters[j]
+        hazards = []
+        if a in alphas:
+            hazards.append("thermal")
+        if photo and a == gamma:
+            hazards.append("photochemical")
+        at_angle = {r: _empty_rule(r, a) for r in RULES}
+        for n, (row, col) in enumerate(res.locations):
+            frame_power = np.zeros(n_f)
+            frame_power[lit_frames] = res.power_at[n, group_of[lit_frames]]
+            powers = frame_power[frame_idx] * scales
+            x, y = grid.point_of(row, col)
+            for hz in hazards:
+                out = _timeline_rules(starts, durs, powers, lam, a, eye, hz)
+                out = {r: replace(out[r], x_um=float(x), y_um=float(y)) for r in RULES}
+                at_angle = _merge_rules(at_angle, out)
+        rules = _merge_rules(rules, at_angle)
+        b = _binding(at_angle)
+        angle_rows.append(AngleResult(a, d_um, res.max_power_mw, b.ratio, b.rule, b.hazard))
     dose, peak = sweep.dose, sweep.peak
 
     worst = _binding(rules)
@@ -2424,6 +2377,14 @@ def assess_sequence(
         "Rules 1-3 are evaluated on the time course at, for each acceptance angle, the "
         "maximum of each frame's disc-power map, the maximum of the disc-energy map and the "
         "samples of largest dose and largest peak irradiance.",
+        "The disc powers at these locations are exact sums of the area-weighted disc."
+        + (
+            " On this large grid the maxima are found by a coarse-to-fine search (a pooled "
+            "disc-power map, then exact sums around its best local maxima), which can miss a "
+            "maximum narrower than a pooled cell by a small fraction."
+            if sweep.search
+            else ""
+        ),
         "Acceptance angles (mrad): "
         + ", ".join(f"{a:.3g}" for a in eval_angles)
         + "; the ratio is not evaluated between them.",

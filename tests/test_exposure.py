@@ -701,12 +701,28 @@ def _ref_disc_maps(irr, grid, diameters_um):
     return out
 
 
+def _ref_disc_sum(irr, grid, d, r, c):
+    # The area-weighted disc kernel times the map around (r, c), summed in float64;
+    # light outside the map is zero. A disc within one sample is a point.
+    if d <= min(grid.pitch_x_um, grid.pitch_y_um):
+        return float(irr[r, c]) * math.pi * (d * 1e-3) ** 2 / 4.0
+    rr = d / 2.0
+    ky = min(int(math.ceil(rr / grid.pitch_y_um + 0.5)), grid.rows - 1)
+    kx = min(int(math.ceil(rr / grid.pitch_x_um + 0.5)), grid.cols - 1)
+    kernel = ex._disc_kernel(d, grid.pitch_x_um, grid.pitch_y_um, ky, kx).astype(np.float64)
+    padded = np.zeros((grid.rows + 2 * ky, grid.cols + 2 * kx))
+    padded[ky : ky + grid.rows, kx : kx + grid.cols] = irr
+    return float(np.sum(kernel * padded[r : r + 2 * ky + 1, c : c + 2 * kx + 1]))
+
+
 def _reference_assess(maps, pulses, grid, lam, alphas_mrad=None):
     """Every map and every disc-power map held at once, evaluated frame by frame.
 
     The straightforward form of the varying-angle evaluation of assess_sequence:
-    the locations are each frame's disc-power maximum, the disc-energy maximum and
-    the samples of largest dose and peak irradiance. # common practice
+    the locations are each frame's disc-power maximum, the disc-energy maximum (the
+    disc-power maximum of the dose map, by linearity) and the samples of largest
+    dose and peak irradiance; the disc powers there are direct sums of the kernel
+    over the map. # common practice
     """
     eye = ex.HUMAN_EYE
     all_p = [p for ps in pulses for p in ps]
@@ -735,26 +751,25 @@ def _reference_assess(maps, pulses, grid, lam, alphas_mrad=None):
     angles = sorted(set(alphas) | ({gamma} if photo else set()))
     diams = [ex.retinal_image_diameter_um(a, eye) for a in angles]
     disc = {k: _ref_disc_maps(maps[k], grid, diams) for k in lit}
+    energy_maps = _ref_disc_maps(dose.astype(np.float32), grid, diams)
     fixed = {_ref_peak_location(dose), _ref_peak_location(peak)}
     rules = {r: ex._empty_rule(r, alphas[0]) for r in ex.RULES}
     rows = []
     for j, a in enumerate(angles):
         locs = set(fixed)
-        energy = np.zeros(grid.shape)
         max_power = 0.0
         for k in lit:
             r, c = _ref_peak_location(disc[k][j])
             locs.add((r, c))
-            max_power = max(max_power, float(disc[k][j][r, c]) * top[k])
-            energy += disc[k][j] * weight[k]
+            max_power = max(max_power, _ref_disc_sum(maps[k], grid, diams[j], r, c) * top[k])
         if lit:
-            locs.add(_ref_peak_location(energy))
+            locs.add(_ref_peak_location(energy_maps[j]))
         hazards = (["thermal"] if a in alphas else []) + (["photochemical"] if a == gamma else [])
         at = {r: ex._empty_rule(r, a) for r in ex.RULES}
         for r, c in sorted(locs):
             fp = np.zeros(n_f)
             for k in lit:
-                fp[k] = disc[k][j][r, c]
+                fp[k] = _ref_disc_sum(maps[k], grid, diams[j], r, c)
             x, y = grid.point_of(r, c)
             for hz in hazards:
                 res = ex._timeline_rules(starts, durs, fp[frame_idx] * scales, lam, a, eye, hz)
@@ -825,16 +840,13 @@ def _mixed_sequence(grid: RetinalGrid, long: bool):
     return frames, maps, pulses, (lazy_b, lazy_c)
 
 
-@pytest.mark.parametrize("budget", [None, 0])
 @pytest.mark.parametrize(
     ("lam", "long", "pitch"),
     [(880.0, False, (12.0, 14.0)), (880.0, False, (30.0, 30.0)), (450.0, True, (12.0, 14.0))],
 )
-def test_sequence_matches_the_direct_evaluation(monkeypatch, budget, lam, long, pitch):
+def test_sequence_matches_the_direct_evaluation(lam, long, pitch):
     # The map-at-a-time evaluation against the direct one that holds every map
     # (_reference_assess). # common practice
-    if budget is not None:
-        monkeypatch.setattr(ex, "_ANGLE_BLOCK_BYTES", budget)  # one angle per block
     grid = RetinalGrid((56, 48), *pitch)  # at 30 um the 1.5 mrad disc is a point
     frames, maps, pulses, counted = _mixed_sequence(grid, long)
     res = ex.assess_sequence(frames, grid, lam)
@@ -864,11 +876,9 @@ def test_sequence_matches_the_direct_evaluation(monkeypatch, budget, lam, long, 
     np.testing.assert_allclose(res.peak_irradiance_map_mw_per_mm2, ref["peak"], rtol=1e-6, atol=0)
     if lam == 450.0:
         assert "photochemical" in {a.hazard for a in res.angles}
-    # each lazy map is read a bounded number of times: once to group it, then at most
-    # twice per block of angles
-    n_blocks = 1 if budget is None else len(res.angles)
+    # each lazy map is read a bounded number of times: once to group it, then twice
     for lazy in counted:
-        assert 1 <= lazy.calls <= 1 + 2 * n_blocks
+        assert 1 <= lazy.calls <= 3
     assert CAUTIONS in res.summary() and res.edition == EDITION
     assert res.as_dict()["caution"] == CAUTIONS
 
@@ -973,22 +983,22 @@ def _lazy_from_disk(tmp_path, grid, n) -> list:
     return frames
 
 
-@pytest.mark.parametrize("one_angle_per_block", [True, False])
-def test_memory_does_not_grow_with_the_number_of_frames(monkeypatch, tmp_path, one_angle_per_block):
+@pytest.mark.parametrize("search", [True, False])
+def test_memory_does_not_grow_with_the_number_of_frames(monkeypatch, tmp_path, search):
     # 512 x 512 float32 maps of 1 MiB each, all distinct, read lazily from disk. Holding
     # them would take 40 maps (and 40 spectra); the sweep holds one at a time.
     # numpy allocations are traced by tracemalloc. # common practice
-    if one_angle_per_block:
-        monkeypatch.setattr(ex, "_ANGLE_BLOCK_BYTES", 0)
+    if search:
+        monkeypatch.setattr(ex, "_SEARCH_MIN_SAMPLES", 0)
     grid = RetinalGrid((512, 512), 10.0, 10.0)
     map_bytes = grid.rows * grid.cols * 4
     frames = _lazy_from_disk(tmp_path, grid, 40)
     peak_40 = _traced_peak_bytes(frames, grid)
     peak_10 = _traced_peak_bytes(frames[:10], grid)
     assert peak_40 < peak_10 + map_bytes
-    if one_angle_per_block:
-        # dose and peak maps (float64), one energy map, the map, two spectra, FFT work arrays
-        assert peak_40 < 15 * map_bytes
+    if search:
+        # dose and peak maps (float64), the map and its prefix sums (float64), pooled maps
+        assert peak_40 < 12 * map_bytes
     else:
-        # plus the energy map and kernel spectrum of each of the 4 angles
+        # plus the map's spectrum, the kernel spectrum of each of the 4 angles, FFT work
         assert peak_40 < 25 * map_bytes
