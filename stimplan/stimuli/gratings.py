@@ -204,7 +204,13 @@ class Grating(Figure):
         X, Y = grid.coords_um()
         u_x = (X - self.center_x_um) * (c / self.period_um)
         u_y = (Y - self.center_y_um) * (s / self.period_um)
-        t = u_x + u_y + self.phase_deg / 360.0  # (rows, cols), periods
+        # bars along an axis: the profile of one row (or column), repeated
+        if abs(s) < 1e-12:
+            t = u_x + self.phase_deg / 360.0  # (1, cols), periods
+        elif abs(c) < 1e-12:
+            t = u_y + self.phase_deg / 360.0  # (rows, 1)
+        else:
+            t = u_x + u_y + self.phase_deg / 360.0  # (rows, cols)
         ha, hb = _projected_half_widths(grid, self.rotation_deg)
         ha /= self.period_um
         hb /= self.period_um
@@ -213,7 +219,8 @@ class Grating(Figure):
             out = 0.5 + 0.5 * damp * np.cos(2.0 * np.pi * np.mod(t, 1.0))
         else:
             out = square_wave_box_mean(t, ha, hb, self.duty_cycle)
-        return np.clip(out, 0.0, 1.0).astype(np.float32)
+        out = np.clip(out, 0.0, 1.0).astype(np.float32)
+        return np.ascontiguousarray(np.broadcast_to(out, grid.shape))
 
 
 @register
