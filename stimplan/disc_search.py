@@ -201,10 +201,11 @@ class DiscSums:
     def __init__(self, diameter_um: float, pitch_x_um: float, pitch_y_um: float, shape):
         rows, cols = shape
         hy, hx = kernel_half(diameter_um, pitch_x_um, pitch_y_um, rows, cols)
-        self.kernel = disc_kernel(diameter_um, pitch_x_um, pitch_y_um, hy, hx)
+        self.diameter_um, self.pitch_x_um, self.pitch_y_um = diameter_um, pitch_x_um, pitch_y_um
         self.half = (hy, hx)
         self.shape = (rows, cols)
-        k = self.kernel.astype(np.float64)
+        self._coarse: dict = {}
+        k = disc_kernel(diameter_um, pitch_x_um, pitch_y_um, hy, hx).astype(np.float64)
         full = k.max() if k.size else 0.0
         run_dr, run_a, run_b, run_w, edge = [], [], [], [], np.zeros(k.shape, bool)
         for i in range(k.shape[0]):
@@ -227,6 +228,28 @@ class DiscSums:
             np.asarray(run_w, np.float64),
         )
         self._edges = ((er - hy).astype(np.int64), (ec - hx).astype(np.int64), k[er, ec])
+
+    def coarse_map(self, coarse: np.ndarray, fy: int, fx: int) -> np.ndarray:
+        """Disc power (up to a constant) at the centres of a map pooled into ``fy x fx`` cells.
+
+        Zero-padded FFT convolution with the disc kernel at the cell pitch; the
+        kernel's spectrum is kept for the next map of the same shape.
+        """
+        key = (fy, fx, coarse.shape)
+        hit = self._coarse.get(key)
+        if hit is None:
+            px, py = self.pitch_x_um * fx, self.pitch_y_um * fy
+            hy, hx = kernel_half(self.diameter_um, px, py, *coarse.shape)
+            kernel = disc_kernel(self.diameter_um, px, py, hy, hx)
+            shape = _padded(coarse.shape, kernel.shape)
+            hit = (sfft.rfft2(kernel, s=shape, workers=-1), kernel.shape, shape)
+            self._coarse[key] = hit
+        kspec, (kh, kw), shape = hit
+        spec = sfft.rfft2(coarse, s=shape, workers=-1)
+        spec *= kspec
+        full = sfft.irfft2(spec, s=shape, workers=-1)
+        rows, cols = coarse.shape
+        return full[kh // 2 : kh // 2 + rows, kw // 2 : kw // 2 + cols]
 
     def at(self, prefix: np.ndarray, irradiance: np.ndarray, rows, cols) -> np.ndarray:
         """Disc sums (float64, mW for a map in mW/mm²) centred at samples ``(rows, cols)``.
@@ -253,18 +276,11 @@ def _pooled(irradiance: np.ndarray, fy: int, fx: int) -> np.ndarray:
     return padded.reshape(ny, fy, nx, fx).sum(axis=(1, 3), dtype=np.float32)
 
 
-def _disc_map(values: np.ndarray, kernel: np.ndarray) -> np.ndarray:
-    """Zero-padded FFT convolution of ``values`` with a centred ``kernel`` (same shape out)."""
-    rows, cols = values.shape
-    kh, kw = kernel.shape
-    shape = (
-        sfft.next_fast_len(rows + kh - 1, real=True),
-        sfft.next_fast_len(cols + kw - 1, real=True),
+def _padded(shape: tuple[int, int], kernel_shape: tuple[int, int]) -> tuple[int, int]:
+    return (
+        sfft.next_fast_len(shape[0] + kernel_shape[0] - 1, real=True),
+        sfft.next_fast_len(shape[1] + kernel_shape[1] - 1, real=True),
     )
-    spec = sfft.rfft2(values, s=shape, workers=-1)
-    spec *= sfft.rfft2(kernel, s=shape, workers=-1)
-    full = sfft.irfft2(spec, s=shape, workers=-1)
-    return full[kh // 2 : kh // 2 + rows, kw // 2 : kw // 2 + cols]
 
 
 def pool_factors(diameter_um: float, pitch_x_um: float, pitch_y_um: float) -> tuple[int, int]:
@@ -279,13 +295,7 @@ def pool_factors(diameter_um: float, pitch_x_um: float, pitch_y_um: float) -> tu
 
 
 def search_max(
-    irradiance: np.ndarray,
-    prefix: np.ndarray,
-    sums: DiscSums,
-    pitch_x_um: float,
-    pitch_y_um: float,
-    diameter_um: float,
-    pooled: Pooled | None = None,
+    irradiance: np.ndarray, prefix: np.ndarray, sums: DiscSums, pooled: Pooled | None = None
 ) -> tuple[int, int, float]:
     """Centre ``(row, col)`` and value (mW) of the largest disc sum on a map.
 
@@ -326,15 +336,11 @@ def search_max(
     .. [1] ICNIRP (2013); IEC 60825-1:2014, Annex A (varying acceptance angle).
     """
     rows, cols = irradiance.shape
-    if not np.any(irradiance):
-        return 0, 0, 0.0
-    fy, fx = pool_factors(diameter_um, pitch_x_um, pitch_y_um)
+    fy, fx = pool_factors(sums.diameter_um, sums.pitch_x_um, sums.pitch_y_um)
     coarse = (Pooled(irradiance) if pooled is None else pooled).get(fy, fx)
-    hy, hx = kernel_half(diameter_um, pitch_x_um * fx, pitch_y_um * fy, *coarse.shape)
-    ck = disc_kernel(diameter_um, pitch_x_um * fx, pitch_y_um * fy, hy, hx)
-    # a coarse cell holds the sum of its samples' irradiance: weight by fraction x sample area
-    ck *= np.float32(1.0 / (fx * fy))
-    cmap = _disc_map(coarse, ck)
+    if not coarse.max() > 0:
+        return 0, 0, 0.0
+    cmap = sums.coarse_map(coarse, fy, fx)
     pr, pc = _local_maxima(cmap)
     order = np.argsort(-cmap[pr, pc], kind="stable")[:CANDIDATES]
     best = (0, 0, -1.0)

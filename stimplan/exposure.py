@@ -2153,8 +2153,7 @@ class _MapSweep:
                 r, c = _peak_location(irr)
                 out.append((r, c, float(irr[r, c]) * _point_area_mm2(d)))
             elif self.search:
-                g = self.grid
-                out.append(search_max(irr, prefix, sums, g.pitch_x_um, g.pitch_y_um, d, pooled))
+                out.append(search_max(irr, prefix, sums, pooled))
             else:
                 f32 = irr if irr.dtype == np.float32 else irr.astype(np.float32)
                 if spec is None:

@@ -186,7 +186,7 @@ class PatternMetrics:
         return dict(self.__dict__)
 
 
-def pattern_metrics(prediction, target) -> PatternMetrics:
+def pattern_metrics(prediction, target, lit: np.ndarray | None = None) -> PatternMetrics:
     """All of :class:`PatternMetrics` for a prediction and its target.
 
     Parameters
@@ -194,6 +194,8 @@ def pattern_metrics(prediction, target) -> PatternMetrics:
     prediction : RetinalPrediction
     target : Target
         On the design grid, concentric with the prediction grid.
+    lit : ndarray, optional
+        ``target.region_on(prediction.grid, "lit")``, if the caller has it.
 
     References
     ----------
@@ -205,7 +207,8 @@ def pattern_metrics(prediction, target) -> PatternMetrics:
     from .target import resample_coverage
 
     grid = prediction.grid
-    lit = target.region_on(grid, "lit")
+    if lit is None:
+        lit = target.region_on(grid, "lit")
     irr = prediction.irradiance_mw_per_mm2
     inside = lit >= 0.999
     if not np.any(inside):

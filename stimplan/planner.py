@@ -387,8 +387,10 @@ def _evaluate(name, stim, index, spec, system, holo, workers, design=None) -> St
     """Prediction, metrics, mask baseline and implant readout of one hologram (at 1 mW)."""
     grid = system.design_grid()
     design = stim.render(grid) if design is None else design
-    pred = holo.predict(system, oversample=spec.oversample, workers=workers)
-    metrics = pattern_metrics(pred, holo.target)
+    lit = holo.target.region_on(system.prediction_grid(spec.oversample), "lit")
+    pred = holo.predict(system, oversample=spec.oversample, workers=workers, signal_region=lit)
+    metrics = pattern_metrics(pred, holo.target, lit)
+    del lit
     pg = pred.grid
     mp, mask = project_mask_on_implant(
         stim.render(pg),

@@ -78,7 +78,7 @@ def test_search_finds_the_largest_disc_power(name):
     for d in (9.0, 26.0, 41.0, 70.0, 160.0, 330.0):
         want = float(_direct_map(irr, d, pitch, pitch).max())
         sums = ds.DiscSums(d, pitch, pitch, irr.shape)
-        r, c, got = ds.search_max(irr, prefix, sums, pitch, pitch, d)
+        r, c, got = ds.search_max(irr, prefix, sums)
         assert got == pytest.approx(float(sums.at(prefix, irr, [r], [c])[0]), rel=1e-12)
         assert got <= want * (1 + 1e-9)
         assert got >= want * (1 - 2e-3), (name, d)
@@ -91,7 +91,7 @@ def test_search_centres_a_plateau_on_the_hot_spot():
     irr[120, 170] = 40.0
     prefix = ds.prefix_sums(irr)
     sums = ds.DiscSums(25.0, 1.0, 1.0, irr.shape)
-    r, c, _ = ds.search_max(irr, prefix, sums, 1.0, 1.0, 25.0)
+    r, c, _ = ds.search_max(irr, prefix, sums)
     assert (r, c) == (120, 170)
 
 

@@ -155,6 +155,43 @@ def far_group_weighted(f, t, gw, groups, free, mix):  # pragma: no cover - compi
             f[i] = 0
 
 
+@nb.njit(**_OPTS)
+def gather_scaled(src, src_r, src_c, ratio_r, ratio_c, out):  # pragma: no cover - compiled
+    """``out[i, j] = src[src_r[i], src_c[j]] * ratio_r[i] * ratio_c[j]`` (2-D float32)."""
+    for i in nb.prange(out.shape[0]):
+        r = src_r[i]
+        w = ratio_r[i]
+        for j in range(out.shape[1]):
+            out[i, j] = src[r, src_c[j]] * w * ratio_c[j]
+
+
+@nb.njit(**_OPTS)
+def slm_field_shifted(amp, phase, pupil, out):  # pragma: no cover - compiled
+    """Write ``amp * exp(i phase) * pupil`` (SLM shape) into the zero array ``out`` (padded
+    shape) at its centred place, in ``ifftshift`` order: pixel ``(i, j)`` goes to
+    ``((i - rows // 2) mod P, (j - cols // 2) mod Q)``."""
+    rows, cols = amp.shape
+    pr, pc = out.shape
+    for i in nb.prange(rows):
+        r = (i - rows // 2) % pr
+        for j in range(cols):
+            a = amp[i, j] * pupil[i, j]
+            ph = phase[i, j]
+            out[r, (j - cols // 2) % pc] = np.complex64(a * np.cos(ph) + 1j * (a * np.sin(ph)))
+
+
+@nb.njit(**_OPTS)
+def shifted_power(f, weight, scale, out):  # pragma: no cover - compiled
+    """``out[k, l] = |f[(k - P // 2) mod P, (l - Q // 2) mod Q]|² * weight[k, l] * scale``
+    (the power of ``fftshift(f)``, float32)."""
+    pr, pc = f.shape
+    for k in nb.prange(pr):
+        r = (k - pr // 2) % pr
+        for c in range(pc):
+            z = f[r, (c - pc // 2) % pc]
+            out[k, c] = (z.real * z.real + z.imag * z.imag) * weight[k, c] * scale
+
+
 class _Set:
     """One family of compiled kernels (parallel or single-threaded)."""
 
@@ -166,6 +203,8 @@ class _Set:
         self.far_wgs = nb.njit(**opts)(far_wgs.py_func)
         self.far_group_weighted = nb.njit(**opts)(far_group_weighted.py_func)
         self.group_power = group_power
+        self.slm_field_shifted = nb.njit(**opts)(slm_field_shifted.py_func)
+        self.shifted_power = nb.njit(**opts)(shifted_power.py_func)
 
 
 #: Kernels that use numba's thread pool (one hologram at a time, all cores).

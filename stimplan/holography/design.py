@@ -97,14 +97,25 @@ class Hologram:
         """Realised phase of the displayed levels, radians."""
         return lut.phase_of_levels(self.levels)
 
-    def predict(self, system, *, oversample: int = 2, workers: int = -1) -> RetinalPrediction:
+    def predict(
+        self,
+        system,
+        *,
+        oversample: int = 2,
+        workers: int = -1,
+        signal_region: np.ndarray | None = None,
+    ) -> RetinalPrediction:
         """Predicted retina for this hologram on ``system``.
 
-        The signal region of the power account is the target's lit area.
+        The signal region of the power account is the target's lit area
+        (``signal_region``, if the caller has it on the prediction grid already).
         """
         lut = grey_map_for(system.slm)
-        grid = system.prediction_grid(oversample)
-        region = self.target.region_on(grid, "lit")
+        if signal_region is None:
+            grid = system.prediction_grid(oversample)
+            region = self.target.region_on(grid, "lit")
+        else:
+            region = signal_region
         return predict_retina(
             self.displayed_phase_rad(lut),
             system,
