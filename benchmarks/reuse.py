@@ -37,7 +37,8 @@ def main(argv=None) -> None:
     h_plain, h_reuse = plain.timings_s["holograms"], reused.timings_s["holograms"]
     print(
         f"reuse_speedup={t_plain / t_reuse:.2f} hologram_stage_speedup={h_plain / h_reuse:.2f} "
-        f"exposure_share={reused.timings_s['exposure'] / t_reuse:.2f} frames={args.frames} "
+        f"exposure_share={reused.timings_s['exposure'] / t_reuse:.2f} "
+        f"plain_s={t_plain:.1f} reuse_s={t_reuse:.1f} frames={args.frames} "
         f"computed_without_reuse={len(plain.holograms)} computed_with_reuse={n_fresh}",
         flush=True,
     )

@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import copy
 import json
+import math
 import os
 import pickle
 import sys
@@ -441,54 +442,117 @@ class _Job:
 
 
 def plan_jobs(
-    spec, groups: list[list[str]], system, *, reuse: bool = True, envelope_tolerance: float = 0.05
+    spec,
+    groups: list[list[str]],
+    system,
+    *,
+    reuse: bool = True,
+    envelope_tolerance: float = 0.05,
+    neighbours: int = 8,
 ) -> list[_Job]:
     """How each distinct stimulus is obtained: computed, translated from another, or warm-started.
 
-    In the image domain a translated stimulus reuses a computed hologram with a
-    linear phase ramp. The pixel envelope does not move with the pattern, so the
-    source is the computed hologram whose envelope differs least over the new
-    pattern (over the implant, if there is one), and the reuse is taken only when
-    that change is at most ``envelope_tolerance``; the prediction of a reused
-    hologram is computed anew, so its figures are its own. With implant-aware
-    targets a translation is not a translation of the target (the implant stays
-    put), so the source's solution is only the starting phase (e.g. a reversed
-    checkerboard starts from its partner), with half the iterations.
-    """
-    from .reuse import envelope_change, shift_in_samples, translation_between
+    Stimuli that can differ only by a translation form a family
+    (:func:`stimplan.reuse.family_key`). In the image domain a translated
+    stimulus reuses a computed hologram of its family with a linear phase
+    ramp. The pixel envelope does not move with the pattern, so a computed
+    hologram can serve the family members whose envelope changes by at most
+    ``envelope_tolerance`` over their pattern (over the implant, if there is
+    one) when moved there; of its ``neighbours`` nearest members, each is
+    checked. The computed holograms are chosen greedily, each the one that
+    serves the most members not yet served, and each member takes the
+    computed hologram whose envelope changes least; the prediction of a
+    reused hologram is computed anew, so its figures are its own. With
+    implant-aware targets a translation is not a translation of the target
+    (the implant stays put), so the first computed member of the family is
+    only the starting phase of the others (e.g. a reversed checkerboard starts
+    from its partner), with half the iterations.
 
+    Returns
+    -------
+    list of _Job
+        In the order of ``groups``; ``base`` indexes that list.
+    """
+    from .reuse import (
+        coarse_grid,
+        envelope_change,
+        family_key,
+        proposed_translations,
+        shift_in_samples,
+        verify_translation,
+    )
+
+    jobs = [_Job(tuple(names), "fresh") for names in groups]
+    if not reuse or len(groups) < 2:
+        return jobs
     grid = system.design_grid()
+    stims = [spec.stimuli[g[0]] for g in groups]
+    renders: dict = {}
+    families: dict[str, list[int]] = {}
+    for i, st in enumerate(stims):
+        families.setdefault(family_key(st), []).append(i)
     aware = spec.implant is not None and spec.implant_aware
+    coarse = coarse_grid(grid)
     region = None
-    if spec.implant is not None:
-        region = spec.implant.rasterize(grid, "cell").coverage_image() > 0
-    jobs: list[_Job] = []
-    for names in groups:
-        stim = spec.stimuli[names[0]]
-        job = _Job(tuple(names), "fresh")
-        if reuse:
-            lit = None
-            best = None
-            for j, other in enumerate(jobs):
-                if other.kind != "fresh":
-                    continue
-                t = translation_between(spec.stimuli[other.names[0]], stim, grid)
-                if t is None:
-                    continue
-                shift = shift_in_samples(t, grid)
-                if aware:
-                    best = (0.0, j, shift)
+    if spec.implant is not None and not aware:
+        region = spec.implant.rasterize(coarse, "cell", check_fit=False).coverage_image() > 0
+
+    def verified(i: int, j: int) -> tuple[float, float] | None:
+        for t in proposed_translations(stims[i], stims[j]):
+            if verify_translation(stims[i], stims[j], t, grid, renders=renders):
+                return t
+        return None
+
+    for members in families.values():
+        if len(members) < 2:
+            continue
+        if aware:
+            fresh = [members[0]]
+            for j in members[1:]:
+                for i in fresh:
+                    t = verified(i, j)
+                    if t is not None:
+                        jobs[j] = _Job(jobs[j].names, "warm", i, shift_in_samples(t, grid))
+                        break
+                else:
+                    fresh.append(j)
+            continue
+        # image domain: which computed hologram could serve which member, and how well
+        serves: dict[int, dict[int, tuple[float, tuple[float, float]]]] = {i: {} for i in members}
+        for j in members:
+            lit = stims[j].render(coarse) > 0
+            if region is not None:
+                lit &= region
+            near = []
+            for i in members:
+                if i != j:
+                    props = proposed_translations(stims[i], stims[j])
+                    if props:
+                        near.append((math.hypot(*props[0]), i, props[0]))
+            for _, i, t in sorted(near)[:neighbours]:
+                change = envelope_change(lit, shift_in_samples(t, coarse), system.slm.fill_factor)
+                if change <= envelope_tolerance:
+                    serves[i][j] = (change, t)
+        waiting = set(members)
+        chosen: list[int] = []
+        while waiting:
+            i = max(sorted(waiting), key=lambda k: len(waiting & serves[k].keys()))
+            chosen.append(i)
+            waiting.discard(i)
+            for j in sorted(waiting & serves[i].keys()):
+                if verify_translation(stims[i], stims[j], serves[i][j][1], grid, renders=renders):
+                    waiting.discard(j)
+                else:
+                    del serves[i][j]
+        for j in members:
+            if j in chosen:
+                continue
+            for _, i, t in sorted(
+                (serves[i][j][0], i, serves[i][j][1]) for i in chosen if j in serves[i]
+            ):
+                if verify_translation(stims[i], stims[j], t, grid, renders=renders):
+                    jobs[j] = _Job(jobs[j].names, "translate", i, shift_in_samples(t, grid))
                     break
-                if lit is None:
-                    lit = stim.render(grid) > 0
-                    if region is not None:
-                        lit &= region
-                change = envelope_change(lit, shift, system.slm.fill_factor)
-                if change <= envelope_tolerance and (best is None or change < best[0]):
-                    best = (change, j, shift)
-            if best is not None:
-                job = _Job(tuple(names), "warm" if aware else "translate", best[1], best[2])
-        jobs.append(job)
     return jobs
 
 
@@ -614,20 +678,26 @@ def plan_sequence(
         store = "disk" if len(jobs) * per_hologram_mb > MEMORY_BUDGET_MB else "memory"
     spool_dir = tempfile.TemporaryDirectory(prefix="stimplan-spool-") if store == "disk" else None
     spool = None if spool_dir is None else spool_dir.name
+    # the batch runs the computed holograms before those that start from them
+    order = [i for i, j in enumerate(jobs) if j.base < 0] + [
+        i for i, j in enumerate(jobs) if j.base >= 0
+    ]
+    position = {i: n for n, i in enumerate(order)}
     tasks = [
         Task(
-            _task_fn(job, i, spec, system, it_tick, spool),
-            (job.base,) if job.base >= 0 else (),
-            job.kind,
+            _task_fn(jobs[i], i, spec, system, it_tick, spool),
+            (position[jobs[i].base],) if jobs[i].base >= 0 else (),
+            jobs[i].kind,
         )
-        for i, job in enumerate(jobs)
+        for i in order
     ]
     t_start = time.perf_counter()
     try:
-        results = run_batch(tasks, scheduler=scheduler, on_done=tick)
+        batch = run_batch(tasks, scheduler=scheduler, on_done=tick)
     finally:
         if bar is not None:
             bar.close()
+    results = [batch[position[i]] for i in range(len(jobs))]
     plans: dict[str, StimulusPlan] = {}
     for job, sp in zip(jobs, results, strict=True):
         for n in job.names:

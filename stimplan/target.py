@@ -17,6 +17,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, replace
 
+import numba as nb
 import numpy as np
 import scipy.sparse as sp
 from scipy import ndimage
@@ -203,8 +204,35 @@ def resample_coverage(values: np.ndarray, src: RetinalGrid, dst: RetinalGrid) ->
     ----------
     .. [1] common practice: area-weighted (conservative) resampling between nested grids.
     """
-    wy = _overlap_matrix(src.rows, src.pitch_y_um, dst.rows, dst.pitch_y_um)
-    wx = _overlap_matrix(src.cols, src.pitch_x_um, dst.cols, dst.pitch_x_um)
-    tmp = wy @ np.asarray(values, dtype=np.float32)
-    out = (wx @ tmp.T).T
-    return np.ascontiguousarray(out, dtype=np.float32)
+    wy = _overlap_matrix(src.rows, src.pitch_y_um, dst.rows, dst.pitch_y_um).tocsr()
+    wx = _overlap_matrix(src.cols, src.pitch_x_um, dst.cols, dst.pitch_x_um).tocsr()
+    vals = np.ascontiguousarray(values, dtype=np.float32)
+    tmp = np.empty((dst.rows, src.cols), dtype=np.float32)
+    _combine_rows(wy.indptr, wy.indices, wy.data, vals, tmp)
+    out = np.empty(dst.shape, dtype=np.float32)
+    _combine_cols(wx.indptr, wx.indices, wx.data, tmp, out)
+    return out
+
+
+# Single-threaded: called from the threads of a batch as well.
+@nb.njit(cache=True, nogil=True)
+def _combine_rows(indptr, indices, data, values, out):  # pragma: no cover - compiled
+    """``out[i, :] = sum_k data[k] * values[indices[k], :]`` over row ``i`` of a CSR matrix."""
+    out[:] = 0.0
+    for i in range(out.shape[0]):
+        for k in range(indptr[i], indptr[i + 1]):
+            w = data[k]
+            src = indices[k]
+            for c in range(out.shape[1]):
+                out[i, c] += w * values[src, c]
+
+
+@nb.njit(cache=True, nogil=True)
+def _combine_cols(indptr, indices, data, values, out):  # pragma: no cover - compiled
+    """``out[:, j] = sum_l data[l] * values[:, indices[l]]`` over row ``j`` of a CSR matrix."""
+    for i in range(out.shape[0]):
+        for j in range(out.shape[1]):
+            acc = np.float32(0.0)
+            for k in range(indptr[j], indptr[j + 1]):
+                acc += data[k] * values[i, indices[k]]
+            out[i, j] = acc

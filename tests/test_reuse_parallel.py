@@ -6,6 +6,12 @@ import numpy as np
 import pytest
 
 from stimplan.planner import plan_jobs, plan_sequence
+from stimplan.reuse import (
+    envelope_change,
+    proposed_translations,
+    shift_in_samples,
+    translation_between,
+)
 from stimplan.sequence import parse_sequence
 
 from .scenarios import small_sequence
@@ -45,6 +51,61 @@ def test_translated_stimulus_reuses_the_hologram_within_2_percent():
     on = a.on
     assert on.sum() > 10
     np.testing.assert_allclose(a.readout.power_uw[on], b.readout.power_uw[on], rtol=0.02)
+
+
+def _drift(phases: int) -> str:
+    parts = []
+    for k in range(phases):
+        parts.append(
+            f'\n[stimuli.drift_{k:02d}]\nkind = "grating"\nperiod_um = 220\n'
+            f"phase_deg = {360.0 * k / phases:.6f}\n"
+        )
+    for k in range(phases):
+        parts.append(
+            f'\n[[steps]]\nstimulus = "drift_{k:02d}"\nduration_ms = 50\npulse_ms = 5\n'
+            "rate_hz = 20\npower_mw = 1.0\n"
+        )
+    return "".join(parts)
+
+
+def test_a_grating_is_periodic_so_a_phase_step_has_a_short_translation():
+    # Source: a grating of period P is unchanged by a translation of P along its
+    # modulation (common practice), so a 342 deg step is also a -18 deg step.
+    from stimplan.stimuli import Grating
+
+    a = Grating(period_um=200.0, phase_deg=0.0)
+    b = Grating(period_um=200.0, phase_deg=342.0)
+    props = proposed_translations(a, b)
+    assert props[0] == pytest.approx((10.0, 0.0))
+    assert (-190.0, 0.0) == pytest.approx(props[1])
+
+
+def test_a_drifting_grating_is_served_by_few_computed_holograms():
+    # Each translated phase takes a computed hologram of its family whose pixel envelope
+    # changes by at most the tolerance over its pattern (Goodman, Introduction to
+    # Fourier Optics, 3rd ed., eq. 4-28); the computed ones are chosen greedily.
+    # # common practice
+    spec = _spec(_drift(16), aware=False)
+    names = [n for n in spec.stimuli if n.startswith("drift_")]
+    system = spec.system
+    grid = system.design_grid()
+    jobs = plan_jobs(spec, [[n] for n in names], system)
+    fresh = [i for i, j in enumerate(jobs) if j.kind == "fresh"]
+    assert 1 <= len(fresh) < len(names) // 3
+    region = spec.implant.rasterize(grid, "cell").coverage_image() > 0
+    for i, j in enumerate(jobs):
+        if j.kind == "fresh":
+            continue
+        assert j.kind == "translate" and j.base in fresh
+        a, b = spec.stimuli[names[j.base]], spec.stimuli[names[i]]
+        t = translation_between(a, b, grid)
+        assert shift_in_samples(t, grid) == pytest.approx(j.shift_rc)
+        lit = (b.render(grid) > 0) & region
+        assert envelope_change(lit, j.shift_rc, system.slm.fill_factor) <= 0.05 + 1e-3
+    plan = plan_sequence(spec, progress=False)
+    computed = {sp.name for sp in plan.holograms if sp.hologram.reused_from is None}
+    reused = [sp.hologram.reused_from for sp in plan.holograms if sp.hologram.reused_from]
+    assert reused and set(reused) <= computed
 
 
 def test_reversed_checkerboard_starts_from_its_partner():
