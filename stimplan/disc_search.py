@@ -356,19 +356,31 @@ def search_max(
 def _local_maxima(cmap: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Cells of ``cmap`` within :data:`CANDIDATE_FLOOR` of its maximum that no
     neighbour exceeds (at least the maximum itself)."""
-    top = float(cmap.max())
-    pr, pc = np.nonzero(cmap >= CANDIDATE_FLOOR * top)
-    if pr.size > 1:
-        padded = np.pad(cmap, 1, mode="constant", constant_values=-np.inf)
-        v = cmap[pr, pc]
-        keep = np.ones(pr.size, dtype=bool)
-        for dr in (-1, 0, 1):
-            for dc in (-1, 0, 1):
-                if dr or dc:
-                    keep &= padded[pr + 1 + dr, pc + 1 + dc] <= v
-        if keep.any():
-            return pr[keep], pc[keep]
-    return np.unravel_index(np.array([int(np.argmax(cmap))]), cmap.shape)
+    values = np.ascontiguousarray(cmap)
+    top = float(values.max())
+    flags = np.zeros(values.shape, dtype=np.bool_)
+    _flag_local_maxima(values, np.float64(CANDIDATE_FLOOR * top), flags)
+    pr, pc = np.nonzero(flags)
+    if pr.size:
+        return pr, pc
+    return np.unravel_index(np.array([int(np.argmax(values))]), values.shape)
+
+
+@nb.njit(cache=True, nogil=True)
+def _flag_local_maxima(values, threshold, flags):  # pragma: no cover - compiled
+    rows, cols = values.shape
+    for i in range(rows):
+        for j in range(cols):
+            v = values[i, j]
+            if v < threshold:
+                continue
+            peak = True
+            for di in range(-1, 2):
+                for dj in range(-1, 2):
+                    a, b = i + di, j + dj
+                    if (di or dj) and 0 <= a < rows and 0 <= b < cols and values[a, b] > v:
+                        peak = False
+            flags[i, j] = peak
 
 
 def _climb(irr, prefix, sums, r, c, cell):

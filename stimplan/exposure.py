@@ -67,6 +67,7 @@ from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass, field, replace
 from typing import Any
 
+import numba as nb
 import numpy as np
 import scipy.fft as sfft
 
@@ -2053,20 +2054,26 @@ def _map_groups(items: Sequence[Frame]) -> list[_MapGroup]:
     return groups
 
 
-def _add_product(acc: np.ndarray, values: np.ndarray, factor: Any) -> None:
-    """``acc += values * factor`` (float64) in row chunks, without a full-size temporary."""
-    f = np.float64(factor)
-    step = max(1, _CHUNK_SAMPLES // acc.shape[1])
-    for i in range(0, acc.shape[0], step):
-        acc[i : i + step] += values[i : i + step] * f
-
-
-def _max_product(acc: np.ndarray, values: np.ndarray, factor: Any) -> None:
-    """``acc = maximum(acc, values * factor)`` (float64) in row chunks."""
-    f = np.float64(factor)
-    step = max(1, _CHUNK_SAMPLES // acc.shape[1])
-    for i in range(0, acc.shape[0], step):
-        np.maximum(acc[i : i + step], values[i : i + step] * f, out=acc[i : i + step])
+@nb.njit(cache=True, nogil=True)
+def _accumulate_map(dose, peak, irr, weight, scale, add_peak, lit):  # pragma: no cover
+    """``dose += weight * irr``; ``peak += scale * irr`` or ``peak = max(peak, scale * irr)``;
+    ``lit[0]`` set if any sample of ``irr`` is non-zero (float64 accumulators)."""
+    rows, cols = irr.shape
+    any_light = False
+    for i in range(rows):
+        for j in range(cols):
+            x = np.float64(irr[i, j])
+            if x != 0.0:
+                any_light = True
+            if weight > 0:
+                dose[i, j] += x * weight
+            if scale > 0:
+                p = x * scale
+                if add_peak:
+                    peak[i, j] += p
+                elif p > peak[i, j]:
+                    peak[i, j] = p
+    lit[0] = any_light
 
 
 @dataclass
@@ -2131,16 +2138,18 @@ class _MapSweep:
         return irr
 
     def _accumulate(self, gi: int, irr: Any) -> bool:
-        """Add the frames of group ``gi`` to the dose and peak maps; True if it is lit."""
-        for k in self.groups[gi].frames:
-            if self.weight_s[k] > 0:
-                _add_product(self.dose, irr, self.weight_s[k])
-            if self.max_scale[k] > 0:
-                if self.overlap:
-                    _add_product(self.peak, irr, self.max_scale[k])
-                else:
-                    _max_product(self.peak, irr, self.max_scale[k])
-        return bool(self._lit_frames(gi)) and bool(np.any(irr))
+        """Add the frames of group ``gi`` to the dose and peak maps; True if it is lit.
+
+        The frames of one map add ``sum(weight) * map`` to the dose map and
+        ``max(scale) * map`` (or, with overlapping pulses, ``sum(scale) * map``)
+        to the peak map, in one fused pass.
+        """
+        weight = sum(float(self.weight_s[k]) for k in self.groups[gi].frames)
+        scales = [float(self.max_scale[k]) for k in self.groups[gi].frames]
+        scale = sum(scales) if self.overlap else max(scales, default=0.0)
+        lit = np.zeros(1, dtype=np.bool_)
+        _accumulate_map(self.dose, self.peak, irr, weight, scale, self.overlap, lit)
+        return bool(self._lit_frames(gi)) and bool(lit[0])
 
     def _maxima(self, irr: np.ndarray) -> list[tuple[int, int, float]]:
         """Per angle, the centre and value of the largest disc power of ``irr``."""
