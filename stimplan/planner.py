@@ -458,10 +458,10 @@ def plan_jobs(
     ramp. The pixel envelope does not move with the pattern, so a computed
     hologram can serve the family members whose envelope changes by at most
     ``envelope_tolerance`` over their pattern (over the implant, if there is
-    one) when moved there; of its ``neighbours`` nearest members, each is
-    checked. The computed holograms are chosen greedily, each the one that
-    serves the most members not yet served, and each member takes the
-    computed hologram whose envelope changes least; the prediction of a
+    one) when moved there; each member considers its ``neighbours`` nearest
+    members (by translation) as sources. The computed holograms are chosen
+    greedily, each the one that serves the most members not yet served, and
+    each member takes the computed hologram whose envelope changes least; the prediction of a
     reused hologram is computed anew, so its figures are its own. With
     implant-aware targets a translation is not a translation of the target
     (the implant stays put), so the first computed member of the family is
@@ -520,7 +520,9 @@ def plan_jobs(
         # image domain: which computed hologram could serve which member, and how well
         serves: dict[int, dict[int, tuple[float, tuple[float, float]]]] = {i: {} for i in members}
         for j in members:
-            lit = stims[j].render(coarse) > 0
+            if id(stims[j]) not in renders:
+                renders[id(stims[j])] = stims[j].render(coarse)
+            lit = renders[id(stims[j])] > 0
             if region is not None:
                 lit &= region
             near = []
