@@ -1999,6 +1999,7 @@ class _MapGroup:
     source: Any
     field: str
     frames: list[int]
+    key: str | None = None
 
 
 def _map_groups(items: Sequence[Frame]) -> list[_MapGroup]:
@@ -2022,8 +2023,8 @@ def _map_groups(items: Sequence[Frame]) -> list[_MapGroup]:
         target = ref() if isinstance(ref, weakref.ref) else ref
         return gi if target is obj else None
 
-    def new_group(k: int, source: Any) -> int:
-        groups.append(_MapGroup(source, f"frames[{k}].irradiance_mw_per_mm2", []))
+    def new_group(k: int, source: Any, key: str | None = None) -> int:
+        groups.append(_MapGroup(source, f"frames[{k}].irradiance_mw_per_mm2", [], key))
         return len(groups) - 1
 
     for k, f in enumerate(items):
@@ -2031,7 +2032,7 @@ def _map_groups(items: Sequence[Frame]) -> list[_MapGroup]:
         if f.key is not None:
             gi = by_key.get(f.key)
             if gi is None:
-                gi = by_key[f.key] = new_group(k, src)
+                gi = by_key[f.key] = new_group(k, src, f.key)
         elif not callable(src):
             gi = known(src)
             if gi is None:
@@ -2106,8 +2107,10 @@ class _MapSweep:
         max_scale: np.ndarray,
         overlap: bool,
         diameters_um: Sequence[float],
+        maxima_cache: dict | None = None,
     ):
         self.groups, self.grid = groups, grid
+        self.cache = maxima_cache
         self.weight_s, self.max_scale, self.overlap = weight_s, max_scale, overlap
         self.diameters = list(diameters_um)
         self.integ = _DiscIntegrator(grid, max(self.diameters))
@@ -2151,8 +2154,16 @@ class _MapSweep:
         _accumulate_map(self.dose, self.peak, irr, weight, scale, self.overlap, lit)
         return bool(self._lit_frames(gi)) and bool(lit[0])
 
-    def _maxima(self, irr: np.ndarray) -> list[tuple[int, int, float]]:
-        """Per angle, the centre and value of the largest disc power of ``irr``."""
+    def _maxima(self, irr: np.ndarray, key: str | None = None) -> list[tuple[int, int, float]]:
+        """Per angle, the centre and value of the largest disc power of ``irr``.
+
+        With a ``key`` and a cache, the maxima of a keyed map found before (same
+        grid and diameter) are taken from the cache.
+        """
+        g = self.grid
+        tags = [(key, g.shape, g.pitch_x_um, g.pitch_y_um, d, self.search) for d in self.diameters]
+        if key is not None and self.cache is not None and all(t in self.cache for t in tags):
+            return [self.cache[t] for t in tags]
         out = []
         prefix = prefix_sums(irr)
         pooled = Pooled(irr) if self.search else None
@@ -2169,6 +2180,8 @@ class _MapSweep:
                     spec = self.integ.spectrum(f32)
                 r, c = _peak_location(self.integ.power_map_mw(f32, d, spec))
                 out.append((r, c, float(sums.at(prefix, irr, [r], [c])[0])))
+        if key is not None and self.cache is not None:
+            self.cache.update(zip(tags, out, strict=True))
         return out
 
     def first_pass(self) -> list[_AngleMaps]:
@@ -2182,7 +2195,7 @@ class _MapSweep:
                 continue
             self.lit.append(gi)
             top = max(self.max_scale[k] for k in self._lit_frames(gi))
-            for j, (r, c, value) in enumerate(self._maxima(irr)):
+            for j, (r, c, value) in enumerate(self._maxima(irr, self.groups[gi].key)):
                 locs[j].add((r, c))
                 max_power[j] = max(max_power[j], value * top)
         self._held = None
@@ -2226,6 +2239,7 @@ def assess_sequence(
     protocol: ProtocolCap | None = None,
     alphas_mrad: Iterable[float] | None = None,
     subject: str | None = None,
+    maxima_cache: dict | None = None,
 ) -> ExposureAssessment:
     """Assess a sequence of frames against the retinal limits (varying acceptance angle).
 
@@ -2247,6 +2261,11 @@ def assess_sequence(
         Acceptance angles; by default :func:`default_acceptance_angles_mrad`.
     subject : str, optional
         The eye the stimulus is for (``"rat"``, ``"mouse"``), named in the basis.
+    maxima_cache : dict, optional
+        Shared between calls that show the same maps under the same keys (e.g.
+        a whole sequence and each stimulus's frames alone): the largest disc
+        power of a keyed map, and its centre, are found once per grid and disc
+        diameter. A key must then name the same map in every call.
 
     Returns
     -------
@@ -2343,7 +2362,7 @@ def assess_sequence(
     group_of = np.empty(n_f, dtype=np.int64)
     for gi, g in enumerate(groups):
         group_of[g.frames] = gi
-    sweep = _MapSweep(groups, grid, weight_s, max_scale, overlap, diameters)
+    sweep = _MapSweep(groups, grid, weight_s, max_scale, overlap, diameters, maxima_cache)
     rules = {r: _empty_rule(r, alphas[0]) for r in RULES}
     angle_rows: list[AngleResult] = []
     results = sweep.first_pass()

@@ -242,12 +242,14 @@ class Plan:
     cautions: str = CAUTIONS
     spool: object = field(default=None, repr=False)
     timings_s: dict = field(default_factory=dict)
+    #: Largest disc powers of the plan's maps, shared by its exposure assessments.
+    maxima_cache: dict = field(default_factory=dict, repr=False)
 
     @cached_property
     def mask_exposure(self) -> xp.ExposureAssessment | None:
         """The timeline through the amplitude mask at the same laser powers."""
         wl = self.spec.system.illumination.wavelength_nm
-        return _assess(self.frames, self.stimuli, "mask", wl, self.spec)
+        return _assess(self.frames, self.stimuli, "mask", wl, self.spec, cache=self.maxima_cache)
 
     @cached_property
     def mask_exposure_equal_irradiance(self) -> xp.ExposureAssessment | None:
@@ -258,7 +260,13 @@ class Plan:
             return None
         wl = self.spec.system.illumination.wavelength_nm
         return _assess(
-            self.frames, self.stimuli, "mask", wl, self.spec, power_of=self.mask_power_for
+            self.frames,
+            self.stimuli,
+            "mask",
+            wl,
+            self.spec,
+            power_of=self.mask_power_for,
+            cache=self.maxima_cache,
         )
 
     @cached_property
@@ -271,7 +279,7 @@ class Plan:
         out = {}
         for sp in self.holograms:
             own = [f for f in self.frames if f.hologram_index == sp.hologram_index]
-            a = _assess(own, self.stimuli, "hologram", wl, self.spec)
+            a = _assess(own, self.stimuli, "hologram", wl, self.spec, cache=self.maxima_cache)
             if a is not None:
                 out[sp.hologram_index] = a
         return out
@@ -708,9 +716,19 @@ def plan_sequence(
     t_holograms = time.perf_counter() - t_start
     frames = tuple(_resolve_frame(fr, spec, plans) for fr in frames_spec)
     wl = spec.system.illumination.wavelength_nm
-    exposure = _with_orders_note(_assess(frames, plans, "hologram", wl, spec), ordered)
+    cache: dict = {}
+    exposure = _with_orders_note(_assess(frames, plans, "hologram", wl, spec, cache=cache), ordered)
     timings = {"holograms": t_holograms, "exposure": time.perf_counter() - t_start - t_holograms}
-    return Plan(spec, plans, tuple(ordered), frames, exposure, spool=spool_dir, timings_s=timings)
+    return Plan(
+        spec,
+        plans,
+        tuple(ordered),
+        frames,
+        exposure,
+        spool=spool_dir,
+        timings_s=timings,
+        maxima_cache=cache,
+    )
 
 
 def _resolve_frame(fr, spec, plans) -> FramePlan:
@@ -764,7 +782,7 @@ def _resolve_frame(fr, spec, plans) -> FramePlan:
     )
 
 
-def _assess(frames, plans, which: str, wavelength_nm: float, spec, power_of=None):
+def _assess(frames, plans, which: str, wavelength_nm: float, spec, power_of=None, cache=None):
     """Exposure of the timeline.
 
     Each hologram is one (lazily read) map at 1 mW; every pulse carries its
@@ -815,6 +833,7 @@ def _assess(frames, plans, which: str, wavelength_nm: float, spec, power_of=None
         wavelength_nm,
         protocol=spec.protocol,
         subject=spec.system.eye.name,
+        maxima_cache=cache,
     )
 
 

@@ -1004,3 +1004,25 @@ def test_memory_does_not_grow_with_the_number_of_frames(monkeypatch, tmp_path, s
     else:
         # plus the map's spectrum, the kernel spectrum of each of the 4 angles, FFT work
         assert peak_40 < 25 * map_bytes
+
+
+def test_shared_maxima_cache_gives_the_same_assessment(monkeypatch):
+    # Keyed maps whose maxima were found in one assessment are taken from the cache in
+    # the next; the results are those of a fresh assessment. # common practice
+    monkeypatch.setattr(ex, "_SEARCH_MIN_SAMPLES", 0)
+    grid = RetinalGrid((64, 60), 12.0, 12.0)
+    a, b = _spots(grid, 2, seed=11)
+    frames = [
+        ex.Frame(a, _train(0), "a", key="map-a"),
+        ex.Frame(b, _train(10), "b", key="map-b"),
+    ]
+    cache: dict = {}
+    whole = ex.assess_sequence(frames, grid, 880.0, maxima_cache=cache)
+    assert cache
+    alone = ex.assess_sequence(frames[1:], grid, 880.0, maxima_cache=cache)
+    fresh = ex.assess_sequence(frames[1:], grid, 880.0)
+    assert alone.worst_ratio == fresh.worst_ratio
+    assert [x.max_disc_power_mw for x in alone.angles] == [
+        x.max_disc_power_mw for x in fresh.angles
+    ]
+    assert whole.worst_ratio == ex.assess_sequence(frames, grid, 880.0).worst_ratio
