@@ -103,7 +103,7 @@ case "$cmd" in
     log "npe2 validate (the napari plugin manifest)"
     "$VENV/bin/npe2" validate stimplan --imports
     log "pytest (under Xvfb)"
-    export QT_API="${QT_API:-pyqt5}"
+    export QT_API="${QT_API:-pyqt6}"
     exec xvfb-run -a -s "-screen 0 1280x1024x24" "$PY" -m pytest "$@"
     ;;
   bench)
