@@ -24,13 +24,20 @@ from .cautions import CAUTIONS, EDITION
 __all__ = ["render_report", "write_report"]
 
 
-def _fig_to_data_uri(fig) -> str:
+def _fig_to_data_uri(fig, photo: bool = False) -> str:
+    """The figure as an embedded image: PNG, or JPEG for figures of noise-like images
+    (an SLM phase does not compress as PNG)."""
     buf = io.BytesIO()
-    fig.savefig(buf, format="png", dpi=90, bbox_inches="tight")
+    if photo:
+        fig.savefig(buf, format="jpeg", dpi=90, bbox_inches="tight", pil_kwargs={"quality": 85})
+        mime = "image/jpeg"
+    else:
+        fig.savefig(buf, format="png", dpi=90, bbox_inches="tight")
+        mime = "image/png"
     import matplotlib.pyplot as plt
 
     plt.close(fig)
-    return "data:image/png;base64," + base64.b64encode(buf.getvalue()).decode("ascii")
+    return f"data:{mime};base64," + base64.b64encode(buf.getvalue()).decode("ascii")
 
 
 def _extent(grid):
@@ -96,7 +103,7 @@ def _stimulus_figures(plan, sp, power_mw: float) -> list[tuple[str, str]]:
         if box:
             a.set_xlim(box[0], box[1])
             a.set_ylim(box[2], box[3])
-    out.append(("Target, SLM phase and predicted retina", _fig_to_data_uri(fig)))
+    out.append(("Target, SLM phase and predicted retina", _fig_to_data_uri(fig, photo=True)))
 
     if sp.readout is not None and plan.spec.implant is not None:
         imp = plan.spec.implant

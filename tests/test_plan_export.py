@@ -128,7 +128,8 @@ def test_over_limit_export_is_refused_unless_acknowledged(tmp_path):
 def test_report_is_self_contained_with_cautions(plan):
     text = render_report(plan)
     assert text.startswith("<!doctype html>")
-    assert text.count("data:image/png;base64,") >= 5
+    images = text.count("data:image/png;base64,") + text.count("data:image/jpeg;base64,")
+    assert images >= 5
     assert "not a safety approval" in text
     assert "src='http" not in text and 'src="http' not in text
 
