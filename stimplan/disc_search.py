@@ -366,10 +366,10 @@ def _local_maxima(cmap: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return np.unravel_index(np.array([int(np.argmax(values))]), values.shape)
 
 
-@nb.njit(cache=True, nogil=True)
+@nb.njit(parallel=True, cache=True, nogil=True)
 def _flag_local_maxima(values, threshold, flags):  # pragma: no cover - compiled
     rows, cols = values.shape
-    for i in range(rows):
+    for i in nb.prange(rows):
         for j in range(cols):
             v = values[i, j]
             if v < threshold:
