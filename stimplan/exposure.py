@@ -73,7 +73,7 @@ import scipy.fft as sfft
 
 from . import _validate as v
 from .cautions import CAUTION_SHORT, CAUTIONS, EDITION, EDITION_SHORT
-from .disc_search import DiscSums, Pooled, prefix_sums, search_max
+from .disc_search import DiscSums, Pooled, kernel_half, prefix_sums, search_max
 from .disc_search import disc_kernel as _disc_kernel
 from .errors import ConfigError
 from .grid import RetinalGrid
@@ -1479,6 +1479,11 @@ def evaluate_train(
 # --------------------------------------------------------------------------
 
 
+def _point_area_mm2(diameter_um: float) -> float:
+    """Area of a disc of ``diameter_um``, mm^2."""
+    return math.pi * (diameter_um * 1e-3) ** 2 / 4.0
+
+
 class _DiscIntegrator:
     """Disc power maps on one grid, zero-padded for the largest disc.
 
@@ -1494,11 +1499,7 @@ class _DiscIntegrator:
 
     def _kernel_half(self, diameter_um: float) -> tuple[int, int]:
         g = self.grid
-        r = diameter_um / 2.0
-        return (
-            min(int(math.ceil(r / g.pitch_y_um + 0.5)), g.rows - 1),
-            min(int(math.ceil(r / g.pitch_x_um + 0.5)), g.cols - 1),
-        )
+        return kernel_half(diameter_um, g.pitch_x_um, g.pitch_y_um, g.rows, g.cols)
 
     def _padded_shape(self, diameter_um: float) -> tuple[int, int]:
         hy, hx = self._kernel_half(diameter_um)
@@ -1548,7 +1549,7 @@ class _DiscIntegrator:
         if self.is_point(diameter_um):
             # A disc that fits in one sample is a point: the sample's irradiance times its area.
             assert irradiance is not None
-            return irradiance * np.float32(math.pi * (diameter_um * 1e-3) ** 2 / 4.0)
+            return irradiance * np.float32(_point_area_mm2(diameter_um))
         need = self._padded_shape(diameter_um)
         if need[0] > self.shape[0] or need[1] > self.shape[1]:
             self.shape = need
@@ -2224,10 +2225,6 @@ class _MapSweep:
                     a.power_at[:, gi] = sums.at(prefix, irr, rr, cc)
             del prefix
         self._held = None
-
-
-def _point_area_mm2(diameter_um: float) -> float:
-    return math.pi * (diameter_um * 1e-3) ** 2 / 4.0
 
 
 def assess_sequence(

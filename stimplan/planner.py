@@ -487,6 +487,7 @@ def plan_jobs(
         family_key,
         proposed_translations,
         shift_in_samples,
+        translation_between,
         verify_translation,
     )
 
@@ -505,12 +506,6 @@ def plan_jobs(
     if spec.implant is not None and not aware:
         region = spec.implant.rasterize(coarse, "cell", check_fit=False).coverage_image() > 0
 
-    def verified(i: int, j: int) -> tuple[float, float] | None:
-        for t in proposed_translations(stims[i], stims[j]):
-            if verify_translation(stims[i], stims[j], t, grid, renders=renders):
-                return t
-        return None
-
     for members in families.values():
         if len(members) < 2:
             continue
@@ -518,7 +513,7 @@ def plan_jobs(
             fresh = [members[0]]
             for j in members[1:]:
                 for i in fresh:
-                    t = verified(i, j)
+                    t = translation_between(stims[i], stims[j], grid, renders=renders)
                     if t is not None:
                         jobs[j] = _Job(jobs[j].names, "warm", i, shift_in_samples(t, grid))
                         break

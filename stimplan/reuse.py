@@ -109,11 +109,13 @@ def verify_translation(a, b, offset_um, grid, *, tolerance: float = 0.02, render
     return float(np.mean(np.abs(moved[inner] - rb[inner]))) <= tolerance
 
 
-def translation_between(a, b, grid, *, tolerance: float = 0.02) -> tuple[float, float] | None:
+def translation_between(
+    a, b, grid, *, tolerance: float = 0.02, renders=None
+) -> tuple[float, float] | None:
     """Retinal translation ``(dx_um, dy_um)`` that turns stimulus ``a`` into ``b``, or None.
 
     The smallest of :func:`proposed_translations` that
-    :func:`verify_translation` confirms.
+    :func:`verify_translation` confirms (``renders``: its cache of renders).
 
     Parameters
     ----------
@@ -128,7 +130,7 @@ def translation_between(a, b, grid, *, tolerance: float = 0.02) -> tuple[float, 
     .. [1] J. W. Goodman, *Introduction to Fourier Optics*, 3rd ed. (2005), §2.1.3 (shift theorem).
     """
     for t in proposed_translations(a, b):
-        if verify_translation(a, b, t, grid, tolerance=tolerance):
+        if verify_translation(a, b, t, grid, tolerance=tolerance, renders=renders):
             return t
     return None
 

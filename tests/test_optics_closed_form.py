@@ -140,6 +140,23 @@ def test_parseval_far_field(rng):
     assert float(np.sum(np.abs(f.astype(np.complex128)) ** 2)) == pytest.approx(p_near, rel=1e-5)
 
 
+@pytest.mark.parametrize("workers", [1, -1])
+@pytest.mark.parametrize(("shape", "padded"), [((64, 48), (128, 96)), ((33, 50), (70, 101))])
+def test_fused_far_power_equals_the_centred_dft(rng, shape, padded, workers):
+    # Source: the centred unitary DFT (Goodman, 3rd ed., §2.1), written the plain way:
+    # |fftshift(fft2(ifftshift(pad(a exp(i phi) pupil))))|^2 times a weight.
+    from stimplan.holography.propagation import _far_power, pad_centered
+
+    amp = rng.uniform(0.0, 1.0, shape).astype(np.float32)
+    phase = rng.uniform(0.0, 2 * np.pi, shape).astype(np.float32)
+    pupil = (rng.uniform(0.0, 1.0, shape) > 0.2).astype(np.float32)
+    weight = rng.uniform(0.5, 1.0, padded).astype(np.float32)
+    field = pad_centered((amp * np.exp(1j * phase) * pupil).astype(np.complex128), padded)
+    want = np.abs(far_field(field)) ** 2 * weight * 0.7
+    got = _far_power(amp, phase, pupil, padded, weight, 0.7, workers)
+    np.testing.assert_allclose(got, want, rtol=1e-4, atol=1e-6 * float(want.max()))
+
+
 @pytest.mark.parametrize(
     "kwargs",
     [
