@@ -20,7 +20,8 @@ PY="$VENV/bin/python"
 SYSTEM_PACKAGES_BASE=(python3 python3-venv python3-pip)
 SYSTEM_PACKAGES_GUI=(xvfb xauth libgl1-mesa-dri libglx-mesa0 libegl1 libxkbcommon-x11-0
   libxcb-icccm4 libxcb-image0 libxcb-keysyms1 libxcb-randr0 libxcb-render-util0
-  libxcb-xinerama0 libxcb-xfixes0 libxcb-shape0 libxcb-cursor0 libdbus-1-3 libfontconfig1)
+  libxcb-xinerama0 libxcb-xfixes0 libxcb-shape0 libxcb-cursor0 libdbus-1-3 libfontconfig1
+  libglib2.0-0 libx11-xcb1)  # Qt6 links GLib and X11-xcb; nothing above pulls GLib in
 
 log() { printf '[stimplan] %s\n' "$*" >&2; }
 
