@@ -10,6 +10,7 @@ from __future__ import annotations
 import math
 from typing import Any
 
+import numba as nb
 import numpy as np
 
 from .errors import ConfigError
@@ -138,14 +139,42 @@ def finite_array(
     if shape is not None and tuple(arr.shape) != tuple(shape):
         raise ConfigError(field, arr, f"an array of shape {tuple(shape)}")
     arr = arr.astype(dtype, copy=False)
-    if arr.size and not np.all(np.isfinite(arr)):
+    if not arr.size:
+        return arr
+    if arr.size >= _ONE_PASS_SIZE and arr.dtype.kind == "f" and arr.flags.c_contiguous:
+        finite, a_min, a_max = _finite_min_max(arr.reshape(-1))
+    else:
+        finite = bool(np.all(np.isfinite(arr)))
+        a_min = float(arr.min()) if finite else 0.0
+        a_max = float(arr.max()) if finite else 0.0
+    if not finite:
         bad = int(np.count_nonzero(~np.isfinite(arr)))
         raise ConfigError(field, arr, "finite values only", f"{bad} NaN or infinite values")
-    if arr.size and lo is not None and float(arr.min()) < lo:
-        raise ConfigError(field, arr, f"values >= {lo}", f"minimum is {float(arr.min()):g}")
-    if arr.size and hi is not None and float(arr.max()) > hi:
-        raise ConfigError(field, arr, f"values <= {hi}", f"maximum is {float(arr.max()):g}")
+    if lo is not None and a_min < lo:
+        raise ConfigError(field, arr, f"values >= {lo}", f"minimum is {a_min:g}")
+    if hi is not None and a_max > hi:
+        raise ConfigError(field, arr, f"values <= {hi}", f"maximum is {a_max:g}")
     return arr
+
+
+#: Arrays from this size on are checked in one compiled pass.
+_ONE_PASS_SIZE = 1 << 16
+
+
+@nb.njit(cache=True, nogil=True)
+def _finite_min_max(flat):  # pragma: no cover - compiled
+    """``(all finite, min, max)`` of a 1-D float array in one pass."""
+    lo = np.inf
+    hi = -np.inf
+    for k in range(flat.size):
+        x = flat[k]
+        if not np.isfinite(x):
+            return False, 0.0, 0.0
+        if x < lo:
+            lo = x
+        if x > hi:
+            hi = x
+    return True, float(lo), float(hi)
 
 
 def _interval_text(lo: Any, hi: Any, lo_open: bool, hi_open: bool) -> str:

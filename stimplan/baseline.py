@@ -160,20 +160,28 @@ def project_mask(
             (w, h),
             f"at most the grid ({grid.width_um:.0f} × {grid.height_um:.0f} µm)",
         )
-    x, y = grid.coords_um()
     cx = v.number("mask.field_center_um[0]", field_center_um[0])
     cy = v.number("mask.field_center_um[1]", field_center_um[1])
-    inside = ((np.abs(x - cx) <= w / 2) & (np.abs(y - cy) <= h / 2)).astype(np.float32)
-    if illumination is None:
-        illum = inside
-    else:
-        illum = v.finite_array("illumination", illumination, shape=grid.shape, lo=0.0) * inside
-    total = float(illum.sum(dtype=np.float64))
-    if total <= 0:
-        raise ConfigError("illumination", "zero on the field", "a non-zero illumination")
-    area_mm2 = float(inside.sum()) * grid.sample_area_mm2
+    # the field is a rectangle: one row factor and one column factor
+    in_x = (np.abs(grid.x_um - cx) <= w / 2).astype(np.float32)
+    in_y = (np.abs(grid.y_um - cy) <= h / 2).astype(np.float32)
+    n_inside = float(in_x.sum()) * float(in_y.sum())
     leak = np.float32(1.0 / mask.contrast_ratio)
-    shown = t + (np.float32(1.0) - t) * leak
-    per_sample_mw = illum * np.float32(p * mask.efficiency * tau / total)
-    irr = (shown * per_sample_mw / np.float32(grid.sample_area_mm2)).astype(np.float32)
+    scale = p * mask.efficiency * tau / grid.sample_area_mm2
+    irr = t * (np.float32(1.0) - leak)  # shown = t + (1 - t) leak, a new float32 array
+    irr += leak
+    if illumination is None:
+        if n_inside <= 0:
+            raise ConfigError("illumination", "zero on the field", "a non-zero illumination")
+        irr *= in_y[:, np.newaxis]
+        irr *= in_x[np.newaxis, :] * np.float32(scale / n_inside)
+    else:
+        illum = v.finite_array("illumination", illumination, shape=grid.shape, lo=0.0)
+        illum = illum * in_y[:, np.newaxis] * in_x[np.newaxis, :]
+        total = float(illum.sum(dtype=np.float64))
+        if total <= 0:
+            raise ConfigError("illumination", "zero on the field", "a non-zero illumination")
+        irr *= illum.astype(np.float32, copy=False)
+        irr *= np.float32(scale / total)
+    area_mm2 = n_inside * grid.sample_area_mm2
     return MaskPrediction(irr, grid, p, area_mm2)

@@ -48,6 +48,7 @@ from dataclasses import dataclass
 from functools import cached_property, lru_cache
 from typing import Any, Literal
 
+import numba as nb
 import numpy as np
 import scipy.sparse as sp
 
@@ -273,9 +274,14 @@ class ImplantRaster:
         a, b = self.matrix.indptr[i], self.matrix.indptr[i + 1]
         return self.matrix.indices[a:b], self.matrix.data[a:b]
 
+    @cached_property
+    def row_sums(self) -> np.ndarray:
+        """Covered samples of each pixel (sum of its coverage fractions), float64."""
+        return np.asarray(self.matrix.sum(axis=1)).ravel()
+
     def area_um2(self) -> np.ndarray:
         """Rasterised area of each pixel's region, µm² (float64, shape (n,))."""
-        return np.asarray(self.matrix.sum(axis=1)).ravel() * self.grid.sample_area_um2
+        return self.row_sums * self.grid.sample_area_um2
 
     def coverage_image(self) -> np.ndarray:
         """Fraction of each sample covered by any pixel, float32 (rows, cols) in [0, 1]."""
@@ -859,9 +865,9 @@ class Implant:
         """
         if not isinstance(grid, RetinalGrid):
             raise ConfigError("grid", grid, "a RetinalGrid")
-        irr = v.finite_array(
-            "irradiance_mw_per_mm2", irradiance_mw_per_mm2, shape=grid.shape, lo=0.0
-        )
+        irr = np.asarray(irradiance_mw_per_mm2)
+        if irr.shape != grid.shape or irr.dtype.kind not in "fiu":
+            raise ConfigError("irradiance_mw_per_mm2", irr, f"a real array of shape {grid.shape}")
         if responsivity_a_per_w is None:
             resp = silicon_responsivity_limit_a_per_w(wavelength_nm)
         else:
@@ -870,13 +876,20 @@ class Implant:
             )
         raster = self.rasterize(grid, "active")
         m = raster.matrix
-        flat = irr.reshape(-1)
+        flat = np.ascontiguousarray(irr, dtype=np.float32).reshape(-1)
         sample_mm2 = grid.sample_area_mm2
-        area_mm2 = np.asarray(m.sum(axis=1)).ravel() * sample_mm2
-        power_mw = (m @ flat.astype(np.float64)) * sample_mm2
+        area_mm2 = raster.row_sums * sample_mm2
+        bad = _first_bad(flat)
+        if bad >= 0:
+            raise ConfigError(
+                "irradiance_mw_per_mm2",
+                f"{float(flat[bad])} at sample {np.unravel_index(bad, grid.shape)}",
+                "finite values >= 0 (mW/mm²)",
+            )
+        sums, lo, hi = _pixel_sums(m.indptr, m.indices, m.data, flat)
+        power_mw = sums * sample_mm2
         with np.errstate(divide="ignore", invalid="ignore"):
             mean = np.where(area_mm2 > 0, power_mw / np.where(area_mm2 > 0, area_mm2, 1.0), 0.0)
-        lo, hi = _extremes(m, flat)
         c = self.centers_um
         return PixelReadout(
             pixel=np.arange(self.n_pixels),
@@ -897,27 +910,48 @@ class Implant:
         return {k: val for k, val in out.items() if val is not None}
 
 
-def _extremes(m: sp.csr_matrix, flat: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Min and max of ``flat`` over each row's samples with coverage > 0.5."""
-    n = m.shape[0]
+@nb.njit(cache=True, nogil=True)
+def _pixel_sums(indptr, indices, data, flat):  # pragma: no cover - compiled
+    """Per row of a CSR coverage matrix: ``sum(data * flat[indices])`` (float64, in CSR
+    order), and the min and max of ``flat`` over the samples with coverage > 0.5 (the
+    most-covered sample if none is)."""
+    n = indptr.size - 1
+    sums = np.zeros(n)
     lo = np.zeros(n)
     hi = np.zeros(n)
-    counts = np.diff(m.indptr)
-    row_of = np.repeat(np.arange(n), counts)
-    strong = m.data > 0.5
-    vals = flat[m.indices[strong]].astype(np.float64)
-    rows = row_of[strong]
-    has = np.bincount(rows, minlength=n) > 0
-    if vals.size:
-        starts = np.searchsorted(rows, np.arange(n))
-        idx = starts[has]
-        lo[has] = np.minimum.reduceat(vals, idx)
-        hi[has] = np.maximum.reduceat(vals, idx)
-    for i in np.nonzero(~has & (counts > 0))[0]:
-        a, b = m.indptr[i], m.indptr[i + 1]
-        k = a + int(np.argmax(m.data[a:b]))
-        lo[i] = hi[i] = float(flat[m.indices[k]])
-    return lo, hi
+    for i in range(n):
+        acc = 0.0
+        mn = np.inf
+        mx = -np.inf
+        best_w = -1.0
+        best_x = 0.0
+        for k in range(indptr[i], indptr[i + 1]):
+            x = np.float64(flat[indices[k]])
+            w = data[k]
+            acc += w * x
+            if w > 0.5:
+                mn = min(mn, x)
+                mx = max(mx, x)
+            if w > best_w:
+                best_w = w
+                best_x = x
+        sums[i] = acc
+        if mx >= mn:
+            lo[i] = mn
+            hi[i] = mx
+        elif indptr[i + 1] > indptr[i]:
+            lo[i] = hi[i] = best_x
+    return sums, lo, hi
+
+
+@nb.njit(cache=True, nogil=True)
+def _first_bad(flat):  # pragma: no cover - compiled
+    """Index of the first value that is not finite and >= 0, or -1."""
+    for k in range(flat.size):
+        x = flat[k]
+        if not (x >= 0 and x < np.inf):
+            return k
+    return -1
 
 
 @lru_cache(maxsize=16)

@@ -12,6 +12,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+import numba as nb
 import numpy as np
 
 from . import _validate as v
@@ -106,17 +107,48 @@ def rms_error(irradiance: np.ndarray, target: np.ndarray, region: np.ndarray) ->
     """
     _same_shape(irradiance, target)
     _same_shape(irradiance, region)
-    w = np.asarray(region, dtype=np.float64)
-    i = np.asarray(irradiance, dtype=np.float64)
-    t = np.asarray(target, dtype=np.float64)
-    den = np.sum(w * i * i)
-    if den <= 0:
+
+    def flat(a):
+        a = np.asarray(a)
+        return np.ascontiguousarray(a, dtype=np.float64 if a.dtype == np.float64 else np.float32)
+
+    i, t, w = (flat(a).reshape(-1) for a in (irradiance, target, region))
+    s_w, s_wt, s_wit, s_wii = _weighted_moments(i, t, w)
+    if s_wii <= 0:
         return float("inf")
-    k = np.sum(w * i * t) / den
-    mean_t = np.sum(w * t) / np.sum(w)
+    k = s_wit / s_wii
+    mean_t = s_wt / s_w if s_w > 0 else 0.0
     if mean_t <= 0:
         raise ConfigError("target", "all zero in region", "a target with light in the region")
-    return float(np.sqrt(np.sum(w * (k * i - t) ** 2) / np.sum(w)) / mean_t)
+    return float(np.sqrt(_weighted_residual(i, t, w, k) / s_w) / mean_t)
+
+
+@nb.njit(cache=True, nogil=True)
+def _weighted_moments(i, t, w):  # pragma: no cover - compiled
+    """``sum(w)``, ``sum(w t)``, ``sum(w i t)``, ``sum(w i i)`` in float64."""
+    s_w = s_wt = s_wit = s_wii = 0.0
+    for k in range(i.size):
+        wk = np.float64(w[k])
+        if wk != 0.0:
+            ik = np.float64(i[k])
+            tk = np.float64(t[k])
+            s_w += wk
+            s_wt += wk * tk
+            s_wit += wk * ik * tk
+            s_wii += wk * ik * ik
+    return s_w, s_wt, s_wit, s_wii
+
+
+@nb.njit(cache=True, nogil=True)
+def _weighted_residual(i, t, w, scale):  # pragma: no cover - compiled
+    """``sum(w (scale i - t)²)`` in float64."""
+    acc = 0.0
+    for k in range(i.size):
+        wk = np.float64(w[k])
+        if wk != 0.0:
+            d = scale * np.float64(i[k]) - np.float64(t[k])
+            acc += wk * d * d
+    return acc
 
 
 def spot_powers(
@@ -210,21 +242,67 @@ def pattern_metrics(prediction, target, lit: np.ndarray | None = None) -> Patter
     if lit is None:
         lit = target.region_on(grid, "lit")
     irr = prediction.irradiance_mw_per_mm2
-    inside = lit >= 0.999
-    if not np.any(inside):
-        inside = lit > 0
+    _same_shape(irr, lit)
+    s_w, w, n_full, s1_full, s2_full, n_pos, s1_pos, s2_pos = _lit_moments(
+        np.ascontiguousarray(irr, dtype=np.float32).reshape(-1),
+        np.ascontiguousarray(lit, dtype=np.float32).reshape(-1),
+    )
+    if n_pos == 0:
+        raise ConfigError("target.lit", "empty", "at least one lit sample")
+    # the samples wholly inside the lit region, or, if there are none, all lit ones
+    cv = (
+        _cv_from_moments(n_full, s1_full, s2_full)
+        if n_full
+        else _cv_from_moments(n_pos, s1_pos, s2_pos)
+    )
     coarse = resample_coverage(irr, grid, target.grid)
     lit_d = target.lit
     near = ndimage.binary_dilation(lit_d, iterations=2)
+    p = v.number("prediction.power_mw", prediction.power_mw, lo=0, lo_open=True)
     return PatternMetrics(
-        efficiency=efficiency(prediction.sample_power_mw, lit, prediction.power_mw),
+        efficiency=s_w * grid.sample_area_mm2 / p,
         uniformity=uniformity(coarse[lit_d]),
         rms_error=rms_error(coarse, target.intensity, near.astype(np.float32)),
-        speckle_contrast=coefficient_of_variation(irr[inside]),
-        mean_lit_irradiance_mw_per_mm2=float(
-            np.sum(irr * lit, dtype=np.float64) / max(float(lit.sum()), 1e-12)
-        ),
+        speckle_contrast=cv,
+        mean_lit_irradiance_mw_per_mm2=s_w / max(w, 1e-12),
     )
+
+
+@nb.njit(parallel=True, cache=True, nogil=True)
+def _lit_moments(irr, lit):  # pragma: no cover - compiled
+    """One pass over a map and its lit coverage: ``sum(irr * lit)``, ``sum(lit)``, and
+    count, sum and sum of squares of ``irr`` where ``lit >= 0.999`` and where ``lit > 0``
+    (float64)."""
+    s_w = 0.0
+    w = 0.0
+    n_full = 0.0
+    s1_full = 0.0
+    s2_full = 0.0
+    n_pos = 0.0
+    s1_pos = 0.0
+    s2_pos = 0.0
+    for i in nb.prange(irr.size):
+        li = np.float64(lit[i])
+        if li > 0:
+            x = np.float64(irr[i])
+            s_w += x * li
+            w += li
+            n_pos += 1.0
+            s1_pos += x
+            s2_pos += x * x
+            if li >= 0.999:
+                n_full += 1.0
+                s1_full += x
+                s2_full += x * x
+    return s_w, w, n_full, s1_full, s2_full, n_pos, s1_pos, s2_pos
+
+
+def _cv_from_moments(n: float, s1: float, s2: float) -> float:
+    """``σ/<x>`` (population σ) from count, sum and sum of squares."""
+    m = s1 / n
+    if m == 0:
+        return float("nan")
+    return float(np.sqrt(max(s2 / n - m * m, 0.0)) / m)
 
 
 def _same_shape(a, b) -> None:

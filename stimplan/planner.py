@@ -32,7 +32,7 @@ from .cautions import CAUTIONS
 from .comparison import ProjectorFigures, pixel_figures, project_mask_on_implant
 from .errors import ConfigError
 from .grid import RetinalGrid
-from .holography import Hologram, design_hologram, linear_phase_ramp
+from .holography import Hologram, add_phase_ramp, design_hologram
 from .holography.design import display_levels
 from .holography.propagation import with_higher_orders
 from .holography.quantize import grey_map_for
@@ -375,8 +375,7 @@ def _translated(
 ) -> Hologram:
     """The base hologram moved by ``shift_rc`` design samples with a linear phase ramp."""
     grid = system.design_grid()
-    ramp = linear_phase_ramp(grid.shape, shift_rc[0], shift_rc[1])
-    phase = np.mod(base.phase_rad + ramp, np.float32(2 * np.pi))
+    phase = add_phase_ramp(base.phase_rad, shift_rc[0], shift_rc[1])
     target = _build_target(stim, spec, grid, design)
     rows, cols = base.offset_samples
     if rows or cols:
@@ -384,7 +383,7 @@ def _translated(
     levels = display_levels(phase, system)
     return replace(
         base,
-        phase_rad=phase.astype(np.float32),
+        phase_rad=phase,
         levels=levels,
         grey=grey_map_for(system.slm).to_grey(levels),
         target=target,
@@ -437,8 +436,7 @@ def _evaluate(name, stim, index, spec, system, holo, workers, design=None) -> St
 def _initial_from(base: Hologram, shift_rc, grid) -> np.ndarray:
     """A warm start: the base's designed phase without its off-axis term, moved by ``shift_rc``."""
     rows, cols = base.offset_samples
-    ramp = linear_phase_ramp(grid.shape, shift_rc[0] - rows, shift_rc[1] - cols)
-    return np.mod(base.phase_rad + ramp, np.float32(2 * np.pi)).astype(np.float32)
+    return add_phase_ramp(base.phase_rad, shift_rc[0] - rows, shift_rc[1] - cols)
 
 
 @dataclass(frozen=True)

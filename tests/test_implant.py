@@ -254,6 +254,24 @@ def test_silicon_responsivity_limit():
         silicon_responsivity_limit_a_per_w(1500.0)
 
 
+def test_readout_equals_the_sparse_coverage_product(rng):
+    # Source: scipy.sparse CSR matrix-vector product (the readout is coverage @ irradiance);
+    # the extremes against numpy min/max over the samples each pixel covers by more than half.
+    imp = Implant(pitch_um=55.0, rings=2, active_fraction=0.5)
+    grid = _grid_for(55.0, n=96, per_pitch=5.0)
+    irr = rng.uniform(0.0, 3.0, grid.shape).astype(np.float32)
+    ro = imp.readout(irr, grid)
+    m = imp.rasterize(grid, "active").matrix
+    want = (m @ irr.reshape(-1).astype(np.float64)) * grid.sample_area_mm2 * 1e3
+    np.testing.assert_allclose(ro.power_uw, want, rtol=1e-12)
+    flat = irr.reshape(-1).astype(np.float64)
+    for i in range(m.shape[0]):
+        a, b = m.indptr[i], m.indptr[i + 1]
+        strong = m.indices[a:b][m.data[a:b] > 0.5]
+        assert ro.min_irradiance_mw_per_mm2[i] == flat[strong].min()
+        assert ro.max_irradiance_mw_per_mm2[i] == flat[strong].max()
+
+
 def test_readout_rejects_bad_irradiance():
     # common practice
     imp = Implant(pitch_um=55.0, rings=1, active_fraction=0.5)

@@ -150,10 +150,17 @@ def test_fused_far_power_equals_the_centred_dft(rng, shape, padded, workers):
     amp = rng.uniform(0.0, 1.0, shape).astype(np.float32)
     phase = rng.uniform(0.0, 2 * np.pi, shape).astype(np.float32)
     pupil = (rng.uniform(0.0, 1.0, shape) > 0.2).astype(np.float32)
-    weight = rng.uniform(0.5, 1.0, padded).astype(np.float32)
+    w_rows = rng.uniform(0.5, 1.0, padded[0]).astype(np.float32)
+    w_cols = rng.uniform(0.5, 1.0, padded[1]).astype(np.float32)
+    weight = np.outer(w_rows, w_cols)
     field = pad_centered((amp * np.exp(1j * phase) * pupil).astype(np.complex128), padded)
     want = np.abs(far_field(field)) ** 2 * weight * 0.7
-    got = _far_power(amp, phase, pupil, padded, weight, 0.7, workers)
+    got = _far_power(amp, phase, pupil, padded, w_rows, w_cols, 0.7, workers)
+    np.testing.assert_allclose(got, want, rtol=1e-4, atol=1e-6 * float(want.max()))
+    # the work plane is reused: a second, different call must not see the first
+    got = _far_power(amp[::-1].copy(), phase, pupil, padded, w_rows, w_cols, 0.7, workers)
+    field = pad_centered((amp[::-1] * np.exp(1j * phase) * pupil).astype(np.complex128), padded)
+    want = np.abs(far_field(field)) ** 2 * weight * 0.7
     np.testing.assert_allclose(got, want, rtol=1e-4, atol=1e-6 * float(want.max()))
 
 
@@ -221,3 +228,37 @@ def test_neighbouring_orders_match_the_direct_far_field(rng):
         env = (np.sinc(math.sqrt(ff) * uy) * np.sinc(math.sqrt(ff) * ux)) ** 2
         direct = abs(field) ** 2 * ff**2 * env / grid.sample_area_mm2
         assert ext[r, col] == pytest.approx(direct, rel=1e-4)
+
+
+@pytest.mark.parametrize(("rows", "cols"), [(3, -5), (0, 7), (-11, 0)])
+def test_added_phase_ramp_moves_the_far_field_by_whole_samples(rows, cols):
+    # Source: Fourier shift theorem (Goodman, 3rd ed., §2.1.3): exp(2πi(c x/N + r y/N))
+    # moves the centred DFT by (r, c) samples; a flat field becomes a delta there.
+    from stimplan.holography import add_phase_ramp, linear_phase_ramp
+
+    n = 64
+    phase = add_phase_ramp(np.zeros((n, n), np.float32), rows, cols)
+    assert phase.dtype == np.float32 and phase.min() >= 0 and phase.max() < 2 * np.pi
+    power = np.abs(far_field(np.exp(1j * phase.astype(np.float64)))) ** 2
+    peak = np.unravel_index(int(np.argmax(power)), power.shape)
+    assert peak == (n // 2 + rows, n // 2 + cols)
+    assert power[peak] == pytest.approx(power.sum(), rel=1e-6)
+    # the fused form equals the wrapped sum of a phase and the documented ramp
+    rng = np.random.default_rng(3)
+    base = rng.uniform(0, 2 * np.pi, (n, n + 3)).astype(np.float32)
+    got = add_phase_ramp(base, rows + 0.37, cols - 0.61)
+    want = np.mod(base + linear_phase_ramp(base.shape, rows + 0.37, cols - 0.61), 2 * np.pi)
+    d = np.abs(got - want)
+    assert float(np.minimum(d, 2 * np.pi - d).max()) < 1e-5
+
+
+def test_quantised_levels_are_the_nearest_staircase_step():
+    # Source: Swanson (1989), §2: L levels 2πk/L; the nearest level is round(φ L / 2π) mod L.
+    rng = np.random.default_rng(5)
+    phase = rng.uniform(-20.0, 20.0, (200, 300)).astype(np.float32)
+    for levels in (2, 256, 1024):
+        k = quantize_phase(phase, levels).astype(np.int64)
+        step = 2 * np.pi / levels
+        err = np.angle(np.exp(1j * (phase.astype(np.float64) - k * step)))
+        assert float(np.abs(err).max()) <= step / 2 + 1e-5
+        assert k.min() >= 0 and k.max() < levels

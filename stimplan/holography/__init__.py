@@ -1,6 +1,6 @@
 """Hologram computation: propagation, IFTA and quantisation."""
 
-from .design import Hologram, design_hologram, linear_phase_ramp
+from .design import Hologram, add_phase_ramp, design_hologram, linear_phase_ramp
 from .ifta import METHODS, IftaResult, IftaSettings, run_ifta
 from .propagation import (
     PowerAccount,
@@ -25,6 +25,7 @@ __all__ = [
     "far_field",
     "grey_map_for",
     "linear_phase_ramp",
+    "add_phase_ramp",
     "near_field",
     "pixel_aperture_envelope",
     "predict_from_levels",

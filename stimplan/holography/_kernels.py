@@ -167,29 +167,59 @@ def gather_scaled(src, src_r, src_c, ratio_r, ratio_c, out):  # pragma: no cover
 
 @nb.njit(**_OPTS)
 def slm_field_shifted(amp, phase, pupil, out):  # pragma: no cover - compiled
-    """Write ``amp * exp(i phase) * pupil`` (SLM shape) into the zero array ``out`` (padded
-    shape) at its centred place, in ``ifftshift`` order: pixel ``(i, j)`` goes to
-    ``((i - rows // 2) mod P, (j - cols // 2) mod Q)``."""
+    """Write ``amp * exp(i phase) * pupil`` (SLM shape) into ``out`` (padded shape) at its
+    centred place, in ``ifftshift`` order, and zero the rest of ``out``: pixel ``(i, j)``
+    goes to ``((i - rows // 2) mod P, (j - cols // 2) mod Q)``."""
     rows, cols = amp.shape
     pr, pc = out.shape
-    for i in nb.prange(rows):
-        r = (i - rows // 2) % pr
-        for j in range(cols):
+    h = cols // 2
+    for r in nb.prange(pr):
+        i = (r + rows // 2) % pr  # the SLM row that lands on padded row r, if any
+        if i >= rows:
+            for c in range(pc):
+                out[r, c] = 0
+            continue
+        for j in range(h, cols):  # columns 0 .. cols - h - 1 of the padded row
             a = amp[i, j] * pupil[i, j]
             ph = phase[i, j]
-            out[r, (j - cols // 2) % pc] = np.complex64(a * np.cos(ph) + 1j * (a * np.sin(ph)))
+            out[r, j - h] = np.complex64(a * np.cos(ph) + 1j * (a * np.sin(ph)))
+        for c in range(cols - h, pc - h):
+            out[r, c] = 0
+        for j in range(h):  # the left half wraps to the end of the row
+            a = amp[i, j] * pupil[i, j]
+            ph = phase[i, j]
+            out[r, pc - h + j] = np.complex64(a * np.cos(ph) + 1j * (a * np.sin(ph)))
 
 
 @nb.njit(**_OPTS)
-def shifted_power(f, weight, scale, out):  # pragma: no cover - compiled
-    """``out[k, l] = |f[(k - P // 2) mod P, (l - Q // 2) mod Q]|² * weight[k, l] * scale``
-    (the power of ``fftshift(f)``, float32)."""
+def shifted_power(f, weight_rows, weight_cols, scale, out):  # pragma: no cover - compiled
+    """``out[k, l] = |f[(k - P // 2) mod P, (l - Q // 2) mod Q]|² * weight_rows[k] *
+    weight_cols[l] * scale`` (the power of ``fftshift(f)`` times a separable weight,
+    float32), in two contiguous runs per row."""
     pr, pc = f.shape
+    h = pc // 2
     for k in nb.prange(pr):
         r = (k - pr // 2) % pr
-        for c in range(pc):
-            z = f[r, (c - pc // 2) % pc]
-            out[k, c] = (z.real * z.real + z.imag * z.imag) * weight[k, c] * scale
+        w = weight_rows[k] * scale
+        for c in range(pc - h):  # out columns h .. pc-1 read f columns 0 .. pc-h-1
+            z = f[r, c]
+            out[k, c + h] = (z.real * z.real + z.imag * z.imag) * w * weight_cols[c + h]
+        for c in range(pc - h, pc):  # out columns 0 .. h-1 read f columns pc-h .. pc-1
+            z = f[r, c]
+            d = c - (pc - h)
+            out[k, d] = (z.real * z.real + z.imag * z.imag) * w * weight_cols[d]
+
+
+@nb.njit(**_OPTS)
+def power_sums(power, region):  # pragma: no cover - compiled
+    """``(sum(power), sum(power * region))`` of two float32 planes, in float64."""
+    total = 0.0
+    inside = 0.0
+    for i in nb.prange(power.size):
+        x = np.float64(power[i])
+        total += x
+        inside += x * region[i]
+    return total, inside
 
 
 class _Set:
@@ -205,6 +235,7 @@ class _Set:
         self.group_power = group_power
         self.slm_field_shifted = nb.njit(**opts)(slm_field_shifted.py_func)
         self.shifted_power = nb.njit(**opts)(shifted_power.py_func)
+        self.power_sums = nb.njit(**opts)(power_sums.py_func)
 
 
 #: Kernels that use numba's thread pool (one hologram at a time, all cores).

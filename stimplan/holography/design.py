@@ -16,6 +16,7 @@ from __future__ import annotations
 from collections.abc import Callable
 from dataclasses import dataclass, replace
 
+import numba as nb
 import numpy as np
 
 from .. import _validate as v
@@ -25,7 +26,13 @@ from .ifta import IftaSettings, run_ifta
 from .propagation import RetinalPrediction, pixel_aperture_envelope, predict_retina
 from .quantize import GreyLevelMap, grey_map_for, quantize_phase
 
-__all__ = ["Hologram", "design_hologram", "linear_phase_ramp", "offset_to_samples"]
+__all__ = [
+    "Hologram",
+    "design_hologram",
+    "linear_phase_ramp",
+    "add_phase_ramp",
+    "offset_to_samples",
+]
 
 TWO_PI = np.float32(2 * np.pi)
 
@@ -46,6 +53,40 @@ def linear_phase_ramp(shape: tuple[int, int], shift_rows: float, shift_cols: flo
     c = (np.arange(nx, dtype=np.float64) - nx // 2) * (shift_cols / nx)
     ramp = np.mod(r[:, np.newaxis] + c[np.newaxis, :], 1.0) * (2 * np.pi)
     return ramp.astype(np.float32)
+
+
+def add_phase_ramp(phase_rad: np.ndarray, shift_rows: float, shift_cols: float) -> np.ndarray:
+    """``mod(phase_rad + linear_phase_ramp(...), 2π)`` in one pass (float32, a new array).
+
+    References
+    ----------
+    .. [1] Goodman (2005), §2.1.3, shift theorem.
+    """
+    phase = np.ascontiguousarray(phase_rad, dtype=np.float32)
+    if phase.ndim != 2:
+        raise ConfigError("phase_rad", phase, "a 2-D phase map")
+    ny, nx = phase.shape
+    r = (np.arange(ny, dtype=np.float64) - ny // 2) * (float(shift_rows) / ny)
+    c = (np.arange(nx, dtype=np.float64) - nx // 2) * (float(shift_cols) / nx)
+    out = np.empty_like(phase)
+    _add_ramp(phase, r, c, out)
+    return out
+
+
+@nb.njit(cache=True, nogil=True)
+def _add_ramp(phase, r, c, out):  # pragma: no cover - compiled
+    two_pi = np.float32(2 * np.pi)
+    for i in range(phase.shape[0]):
+        for j in range(phase.shape[1]):
+            x = r[i] + c[j]
+            ramp = np.float32((x - np.floor(x)) * (2 * np.pi))
+            y = phase[i, j] + ramp
+            y = y - np.floor(y / two_pi) * two_pi
+            if y < 0:  # float32 rounding at the wrap
+                y += two_pi
+            if y >= two_pi:
+                y -= two_pi
+            out[i, j] = y
 
 
 def offset_to_samples(offset_um: tuple[float, float], grid) -> tuple[int, int]:
@@ -211,7 +252,7 @@ def design_hologram(
     )
     phase = res.phase_rad
     if rows or cols:
-        phase = np.mod(phase + linear_phase_ramp(grid.shape, rows, cols), TWO_PI)
+        phase = add_phase_ramp(phase, rows, cols)
     if res.target is not design_target:  # MRAF added a window: keep it with the placed target
         win = replace(target, signal=res.target.signal, free=res.target.free)
         placed = win.shifted(rows, cols) if (rows or cols) else win

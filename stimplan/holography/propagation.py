@@ -30,7 +30,9 @@ References
 
 from __future__ import annotations
 
+import threading
 from dataclasses import dataclass, field, replace
+from functools import lru_cache
 
 import numpy as np
 import scipy.fft as sfft
@@ -132,12 +134,31 @@ def pixel_aperture_envelope(
     .. [1] Goodman (2005), §4.2.2, eq. (4-28): Fraunhofer pattern of a
        rectangular aperture.
     """
+    ey, ex = _aperture_axes(shape, samples_per_order, aperture_fraction)
+    return (ey[:, np.newaxis] * ex[np.newaxis, :]).astype(np.float32)
+
+
+def _aperture_axes(shape, samples_per_order, aperture_fraction) -> tuple[np.ndarray, np.ndarray]:
     f = v.number("aperture_fraction", aperture_fraction, lo=0, hi=1, lo_open=True)
     ky = (np.arange(shape[0]) - shape[0] // 2) / samples_per_order[0]
     kx = (np.arange(shape[1]) - shape[1] // 2) / samples_per_order[1]
-    ey = np.sinc(f * ky) ** 2
-    ex = np.sinc(f * kx) ** 2
-    return (ey[:, np.newaxis] * ex[np.newaxis, :]).astype(np.float32)
+    return np.sinc(f * ky) ** 2, np.sinc(f * kx) ** 2
+
+
+def pixel_aperture_axes(
+    shape: tuple[int, int], samples_per_order: tuple[int, int], aperture_fraction: float
+) -> tuple[np.ndarray, np.ndarray]:
+    """The two 1-D factors ``(rows, cols)`` of :func:`pixel_aperture_envelope` (float32).
+
+    The envelope of a rectangular aperture is separable, so a kernel can
+    weight a plane by ``ey[k] * ex[l]`` without forming the 2-D envelope.
+
+    References
+    ----------
+    .. [1] Goodman (2005), §4.2.2, eq. (4-28).
+    """
+    ey, ex = _aperture_axes(shape, samples_per_order, aperture_fraction)
+    return ey.astype(np.float32), ex.astype(np.float32)
 
 
 @dataclass(frozen=True)
@@ -252,26 +273,60 @@ class RetinalPrediction:
         )
 
 
+def _beam_on_slm(system) -> tuple[np.ndarray, np.ndarray, float]:
+    """Beam amplitude (float32), pupil mask (float32 0/1) and beam power inside the pupil
+    (mW) on the SLM pixels; kept for the last few systems with an analytic beam."""
+    if system.illumination.profile == "file":  # the file may change between calls
+        return _beam_uncached(system)
+    return _beam_cached(system)
+
+
+def _beam_uncached(system) -> tuple[np.ndarray, np.ndarray, float]:
+    amp = system.illumination.amplitude(system.slm)
+    pupil = system.pupil_mask().astype(np.float32)
+    inside = float(np.sum(amp.astype(np.float64) ** 2 * pupil))
+    amp.setflags(write=False)
+    pupil.setflags(write=False)
+    return amp, pupil, inside
+
+
+_beam_cached = lru_cache(maxsize=4)(_beam_uncached)
+
+_SCRATCH = threading.local()
+
+
+def _scratch(shape: tuple[int, int]) -> np.ndarray:
+    """A complex64 work plane of ``shape`` kept per thread (its contents are garbage)."""
+    buf = getattr(_SCRATCH, "plane", None)
+    if buf is None or buf.shape != shape:
+        buf = _SCRATCH.plane = np.empty(shape, dtype=np.complex64)
+    return buf
+
+
 def _far_power(
     amplitude: np.ndarray,
     phase_rad: np.ndarray | None,
     pupil: np.ndarray | None,
     padded_shape: tuple[int, int],
-    weight: np.ndarray,
+    weight_rows: np.ndarray,
+    weight_cols: np.ndarray,
     scale: float,
     workers: int,
 ) -> np.ndarray:
     """``|far_field(pad_centered(amplitude exp(i phase) pupil))|² * weight * scale`` (float32),
-    with the shifts folded into two fused passes around one in-place FFT."""
+    ``weight = outer(weight_rows, weight_cols)``, with the shifts folded into two fused
+    passes around one in-place FFT on a per-thread work plane."""
     kern = _K.SERIAL if workers == 1 else _K.PARALLEL
     amp = np.ascontiguousarray(amplitude, dtype=np.float32)
     ph = np.zeros_like(amp) if phase_rad is None else np.ascontiguousarray(phase_rad, np.float32)
     pu = np.ones_like(amp) if pupil is None else np.ascontiguousarray(pupil, dtype=np.float32)
-    buf = np.zeros(padded_shape, dtype=np.complex64)
+    buf = _scratch(tuple(padded_shape))
     kern.slm_field_shifted(amp, ph, pu, buf)
-    buf = sfft.fft2(buf, norm="ortho", workers=workers, overwrite_x=True)
+    spec = sfft.fft2(buf, norm="ortho", workers=workers, overwrite_x=True)
     out = np.empty(padded_shape, dtype=np.float32)
-    kern.shifted_power(buf, weight, np.float32(scale), out)
+    wr = np.ascontiguousarray(weight_rows, dtype=np.float32)
+    wc = np.ascontiguousarray(weight_cols, dtype=np.float32)
+    kern.shifted_power(spec, wr, wc, np.float32(scale), out)
     return out
 
 
@@ -325,22 +380,21 @@ def predict_retina(
     s = v.integer("oversample", oversample, lo=2, hi=16)
     phase = v.finite_array("hologram.phase_rad", displayed_phase_rad, shape=slm.shape)
     system.check_pupil()
-    amp = system.illumination.amplitude(slm)
+    amp, pupil, beam_in_pupil_mw = _beam_on_slm(system)
     p_in = float(system.illumination.power_mw)
     ff = slm.fill_factor
     z = slm.zero_order_fraction
     tau = system.eye.transmission
-    pupil = system.pupil_mask()
     p_apert = ff * p_in
-    p_pupil = ff * float(np.sum(amp.astype(np.float64) ** 2 * pupil))
+    p_pupil = ff * beam_in_pupil_mw
     clipped = max(p_apert - p_pupil, 0.0)  # float rounding can leave -1e-9
     p_pupil = p_apert - clipped
 
     grid = system.prediction_grid(s)
     padded = grid.shape
-    env = pixel_aperture_envelope(padded, padded, float(np.sqrt(ff)))
+    env_r, env_c = pixel_aperture_axes(padded, padded, float(np.sqrt(ff)))
     # bin power = ff² · env · |C_k|² for a field whose |c_n|² is the power on cell n
-    k_env = env * np.float32(ff * ff)
+    env_r *= np.float32(ff * ff)
 
     lens = system.fresnel_phase_rad()
     corr = system.illumination.correction_phase_rad(slm)
@@ -349,8 +403,15 @@ def predict_retina(
         mod_phase = mod_phase - lens
     if corr is not None:
         mod_phase = mod_phase - corr
-    power_mod = _far_power(amp, mod_phase, pupil, padded, k_env, 1.0 - z, workers)
-    field_mw_pre = float(power_mod.sum(dtype=np.float64))
+    power_mod = _far_power(amp, mod_phase, pupil, padded, env_r, env_c, 1.0 - z, workers)
+    region = None
+    if signal_region is not None:
+        region = v.finite_array("signal_region", signal_region, shape=padded, lo=0, hi=1)
+        region = np.ascontiguousarray(region, dtype=np.float32).reshape(-1)
+        sums = (_K.SERIAL if workers == 1 else _K.PARALLEL).power_sums
+        field_mw_pre, signal_pre = sums(power_mod.reshape(-1), region)
+    else:
+        field_mw_pre = float(power_mod.sum(dtype=np.float64))
 
     zero_pre = 0.0
     power = power_mod
@@ -362,15 +423,12 @@ def predict_retina(
                 zphase -= lens
             if corr is not None:
                 zphase -= corr
-        power_zero = _far_power(amp, zphase, pupil, padded, k_env, z, workers)
+        power_zero = _far_power(amp, zphase, pupil, padded, env_r, env_c, z, workers)
         zero_pre = float(power_zero.sum(dtype=np.float64))
         power = power_mod + power_zero
     central = field_mw_pre + zero_pre
     higher = p_pupil - central
-    signal = None
-    if signal_region is not None:
-        region = v.finite_array("signal_region", signal_region, shape=padded, lo=0, hi=1)
-        signal = tau * float(np.sum(power_mod * region, dtype=np.float64))
+    signal = None if region is None else tau * float(signal_pre)
     power *= np.float32(tau)
     irr = power
     irr *= np.float32(1.0 / grid.sample_area_mm2)

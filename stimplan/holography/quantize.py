@@ -16,6 +16,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from pathlib import Path
 
+import numba as nb
 import numpy as np
 
 from .. import _validate as v
@@ -52,9 +53,18 @@ def quantize_phase(phase_rad: np.ndarray, levels: int) -> np.ndarray:
        blazed ramp.
     """
     levels = v.integer("slm.phase_levels", levels, lo=2, hi=65536)
-    k = np.rint(np.asarray(phase_rad, dtype=np.float32) * np.float32(levels / TWO_PI))
-    k = np.mod(k, levels)
-    return k.astype(level_dtype(levels))
+    phase = np.ascontiguousarray(phase_rad, dtype=np.float32)
+    out = np.empty(phase.shape, dtype=level_dtype(levels))
+    _quantize(phase.reshape(-1), np.float32(levels / TWO_PI), levels, out.reshape(-1))
+    return out
+
+
+@nb.njit(cache=True, nogil=True)
+def _quantize(phase, scale, levels, out):  # pragma: no cover - compiled
+    """``out = mod(rint(phase * scale), levels)`` (float32 product, round half to even)."""
+    for k in range(phase.size):
+        q = np.int64(np.rint(phase[k] * scale)) % levels
+        out[k] = q
 
 
 @dataclass(frozen=True)
