@@ -343,27 +343,45 @@ def search_max(
     cmap = sums.coarse_map(coarse, fy, fx)
     pr, pc = _local_maxima(cmap)
     order = np.argsort(-cmap[pr, pc], kind="stable")[:CANDIDATES]
-    best = (0, 0, -1.0)
-    for i in order:
-        r0 = min(int(pr[i]) * fy + fy // 2, rows - 1)
-        c0 = min(int(pc[i]) * fx + fx // 2, cols - 1)
-        found = _climb(irradiance, prefix, sums, r0, c0, max(fy, fx))
-        if found[2] > best[2]:
-            best = found
-    return _plateau_centre(irradiance, prefix, sums, *best)
+    r0 = np.minimum(pr[order].astype(np.int64) * fy + fy // 2, rows - 1)
+    c0 = np.minimum(pc[order].astype(np.int64) * fx + fx // 2, cols - 1)
+    r, c, value = _climb(irradiance, prefix, sums, r0, c0, max(fy, fx))
+    k = int(np.argmax(value))  # the first of the largest, in the candidates' order
+    return _plateau_centre(irradiance, prefix, sums, int(r[k]), int(c[k]), float(value[k]))
 
 
 def _local_maxima(cmap: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Cells of ``cmap`` within :data:`CANDIDATE_FLOOR` of its maximum that no
-    neighbour exceeds (at least the maximum itself)."""
+    neighbour exceeds (at least the maximum itself), in row-major order."""
     values = np.ascontiguousarray(cmap)
     top = float(values.max())
     flags = np.zeros(values.shape, dtype=np.bool_)
     _flag_local_maxima(values, np.float64(CANDIDATE_FLOOR * top), flags)
-    pr, pc = np.nonzero(flags)
+    pr, pc = _flagged(flags)
     if pr.size:
         return pr, pc
     return np.unravel_index(np.array([int(np.argmax(values))]), values.shape)
+
+
+@nb.njit(cache=True, nogil=True)
+def _flagged(flags):  # pragma: no cover - compiled
+    """``np.nonzero`` of a 2-D boolean array (fast when few cells are set)."""
+    rows, cols = flags.shape
+    n = 0
+    for i in range(rows):
+        for j in range(cols):
+            if flags[i, j]:
+                n += 1
+    pr = np.empty(n, np.int64)
+    pc = np.empty(n, np.int64)
+    k = 0
+    for i in range(rows):
+        for j in range(cols):
+            if flags[i, j]:
+                pr[k] = i
+                pc[k] = j
+                k += 1
+    return pr, pc
 
 
 @nb.njit(parallel=True, cache=True, nogil=True)
@@ -384,35 +402,42 @@ def _flag_local_maxima(values, threshold, flags):  # pragma: no cover - compiled
 
 
 def _climb(irr, prefix, sums, r, c, cell):
-    """Refine a coarse maximum: exhaustive grids of 9 x 9 exact sums (the first spans
-    two cells on either side), each four times finer than the last and spanning
-    two of its steps, then single steps uphill."""
+    """Refine coarse maxima, all candidates at once: exhaustive grids of 9 x 9 exact
+    sums around each (the first spans two cells on either side), each four times finer
+    than the last and spanning two of its steps, then single steps uphill until none
+    rises. Each candidate climbs on its own; they share the calls. Returns each
+    candidate's final ``(rows, cols, values)``."""
     rows, cols = irr.shape
-    value = float(sums.at(prefix, irr, [r], [c])[0])
+    r = np.array(r, dtype=np.int64)
+    c = np.array(c, dtype=np.int64)
+    value = sums.at(prefix, irr, r, c)
+
+    def best_of(ri, ci, offs):
+        gr = np.clip(ri[:, None, None] + offs[None, :, None], 0, rows - 1)
+        gc = np.clip(ci[:, None, None] + offs[None, None, :], 0, cols - 1)
+        gr, gc = (a.reshape(ri.size, -1) for a in np.broadcast_arrays(gr, gc))
+        vals = sums.at(prefix, irr, gr, gc).reshape(ri.size, -1)
+        k = np.argmax(vals, axis=1)  # the first of the largest, row-major as a meshgrid
+        sel = np.arange(ri.size)
+        return gr[sel, k], gc[sel, k], vals[sel, k]
+
     span = 2 * max(1, cell)
     while True:
         step = max(1, span // 4)
-        offs = np.arange(-span, span + 1, step)
-        gr, gc = np.meshgrid(
-            np.clip(r + offs, 0, rows - 1), np.clip(c + offs, 0, cols - 1), indexing="ij"
-        )
-        vals = sums.at(prefix, irr, gr, gc)
-        k = int(np.argmax(vals))
-        if vals[k] > value:
-            r, c, value = int(gr.flat[k]), int(gc.flat[k]), float(vals[k])
+        br, bc, bv = best_of(r, c, np.arange(-span, span + 1, step))
+        up = bv > value
+        r, c, value = np.where(up, br, r), np.where(up, bc, c), np.where(up, bv, value)
         if step == 1:
             break
         span = step
-    while True:  # the maximum may sit on the last grid's edge
-        offs = np.array([-1, 0, 1])
-        gr, gc = np.meshgrid(
-            np.clip(r + offs, 0, rows - 1), np.clip(c + offs, 0, cols - 1), indexing="ij"
-        )
-        vals = sums.at(prefix, irr, gr, gc)
-        k = int(np.argmax(vals))
-        if not vals[k] > value:
-            return r, c, value
-        r, c, value = int(gr.flat[k]), int(gc.flat[k]), float(vals[k])
+    active = np.arange(r.size)  # the maximum may sit on the last grid's edge
+    while active.size:
+        br, bc, bv = best_of(r[active], c[active], np.array([-1, 0, 1]))
+        up = bv > value[active]
+        moved = active[up]
+        r[moved], c[moved], value[moved] = br[up], bc[up], bv[up]
+        active = moved
+    return r, c, value
 
 
 def _run_end(irr, prefix, sums, r, c, dr, dc, thr) -> int:
@@ -441,6 +466,12 @@ def _plateau_centre(irr, prefix, sums, r, c, value):
     if value <= 0:
         return r, c, max(value, 0.0)
     thr = value * (1 - TIE)
+    rows, cols = irr.shape
+    nr = np.array([r, r, r - 1, r + 1])
+    nc = np.array([c - 1, c + 1, c, c])
+    ok = (nr >= 0) & (nr < rows) & (nc >= 0) & (nc < cols)
+    if not np.any(sums.at(prefix, irr, nr[ok], nc[ok]) >= thr):
+        return r, c, value  # no tied neighbour: no run to centre on
     for _ in range(2):
         for dr, dc in ((0, 1), (1, 0)):
             ahead = _run_end(irr, prefix, sums, r, c, dr, dc, thr)

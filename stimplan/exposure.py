@@ -65,6 +65,7 @@ import math
 import weakref
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass, field, replace
+from functools import lru_cache
 from typing import Any
 
 import numba as nb
@@ -2078,6 +2079,13 @@ def _accumulate_map(dose, peak, irr, weight, scale, add_peak, lit):  # pragma: n
     lit[0] = any_light
 
 
+@lru_cache(maxsize=16)
+def _disc_sums(diameter_um: float, pitch_x_um: float, pitch_y_um: float, shape) -> DiscSums:
+    """One :class:`DiscSums` per disc and grid, shared by the assessments of a session
+    (it keeps the kernel spectra of its coarse stage)."""
+    return DiscSums(diameter_um, pitch_x_um, pitch_y_um, shape)
+
+
 @dataclass
 class _AngleMaps:
     """What the rules need of one acceptance angle: the largest disc power of any
@@ -2119,7 +2127,7 @@ class _MapSweep:
         self.sums = [
             None
             if self.integ.is_point(d)
-            else DiscSums(d, grid.pitch_x_um, grid.pitch_y_um, grid.shape)
+            else _disc_sums(d, grid.pitch_x_um, grid.pitch_y_um, grid.shape)
             for d in self.diameters
         ]
         self.dose = np.zeros(grid.shape, dtype=np.float64)
