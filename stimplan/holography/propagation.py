@@ -290,16 +290,21 @@ def _beam_uncached(system) -> tuple[np.ndarray, np.ndarray, float]:
     return amp, pupil, inside
 
 
-_beam_cached = lru_cache(maxsize=4)(_beam_uncached)
+_beam_cached = lru_cache(maxsize=2)(_beam_uncached)
 
 _SCRATCH = threading.local()
+#: Work planes up to this size are kept per thread (a 1024² SLM, 2x padded: 32 MiB).
+_SCRATCH_MAX_BYTES = 64 * 2**20
 
 
 def _scratch(shape: tuple[int, int]) -> np.ndarray:
-    """A complex64 work plane of ``shape`` kept per thread (its contents are garbage)."""
+    """A complex64 work plane of ``shape`` (its contents are garbage), kept per thread
+    when it is small enough to hold on to."""
     buf = getattr(_SCRATCH, "plane", None)
-    if buf is None or buf.shape != shape:
-        buf = _SCRATCH.plane = np.empty(shape, dtype=np.complex64)
+    if buf is not None and buf.shape == shape:
+        return buf
+    buf = np.empty(shape, dtype=np.complex64)
+    _SCRATCH.plane = buf if buf.nbytes <= _SCRATCH_MAX_BYTES else None
     return buf
 
 
