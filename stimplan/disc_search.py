@@ -33,6 +33,8 @@ import numba as nb
 import numpy as np
 import scipy.fft as sfft
 
+from .errors import ConfigError
+
 __all__ = ["disc_kernel", "kernel_half", "DiscSums", "Pooled", "prefix_sums", "search_max"]
 
 #: Disc diameter per pooled cell in the coarse stage of :func:`search_max` (at least).
@@ -89,10 +91,16 @@ def disc_kernel(
     return (frac * (px * py * 1e-6)).astype(np.float32)
 
 
-def prefix_sums(irradiance: np.ndarray) -> np.ndarray:
-    """Row prefix sums ``P[r, c] = sum(irradiance[r, :c])``, float64, ``(rows, cols + 1)``."""
+def prefix_sums(irradiance: np.ndarray, out: np.ndarray | None = None) -> np.ndarray:
+    """Row prefix sums ``P[r, c] = sum(irradiance[r, :c])``, float64, ``(rows, cols + 1)``.
+
+    ``out``, if given, is a float64 array of that shape to write into.
+    """
     rows, cols = irradiance.shape
-    out = np.empty((rows, cols + 1), dtype=np.float64)
+    if out is None:
+        out = np.empty((rows, cols + 1), dtype=np.float64)
+    elif out.shape != (rows, cols + 1) or out.dtype != np.float64 or not out.flags.c_contiguous:
+        raise ConfigError("out", out, f"a C-contiguous float64 array of shape {(rows, cols + 1)}")
     _prefix_rows(np.ascontiguousarray(irradiance), out)
     return out
 

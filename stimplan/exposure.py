@@ -190,7 +190,6 @@ _TIME_TOL_S = 1e-9
 #: Maps of more samples than this find each disc-power maximum by a coarse-to-fine
 #: search (:func:`stimplan.disc_search.search_max`); smaller ones by a full FFT map.
 _SEARCH_MIN_SAMPLES = 1 << 20
-_CHUNK_SAMPLES = 1 << 16
 
 
 # --------------------------------------------------------------------------
@@ -2057,17 +2056,17 @@ def _map_groups(items: Sequence[Frame]) -> list[_MapGroup]:
     return groups
 
 
-@nb.njit(cache=True, nogil=True)
+@nb.njit(parallel=True, cache=True, nogil=True)
 def _accumulate_map(dose, peak, irr, weight, scale, add_peak, lit):  # pragma: no cover
     """``dose += weight * irr``; ``peak += scale * irr`` or ``peak = max(peak, scale * irr)``;
     ``lit[0]`` set if any sample of ``irr`` is non-zero (float64 accumulators)."""
     rows, cols = irr.shape
-    any_light = False
-    for i in range(rows):
+    n_light = 0
+    for i in nb.prange(rows):
         for j in range(cols):
             x = np.float64(irr[i, j])
             if x != 0.0:
-                any_light = True
+                n_light += 1
             if weight > 0:
                 dose[i, j] += x * weight
             if scale > 0:
@@ -2076,7 +2075,7 @@ def _accumulate_map(dose, peak, irr, weight, scale, add_peak, lit):  # pragma: n
                     peak[i, j] += p
                 elif p > peak[i, j]:
                     peak[i, j] = p
-    lit[0] = any_light
+    lit[0] = n_light > 0
 
 
 @lru_cache(maxsize=16)
@@ -2134,6 +2133,8 @@ class _MapSweep:
         self.peak = np.zeros(grid.shape, dtype=np.float64)
         self.lit: list[int] = []  # groups with light, in order
         self._held: tuple[int, np.ndarray] | None = None
+        self._held_prefix: tuple[np.ndarray, np.ndarray] | None = None  # (map, its prefix sums)
+        self._prefix_buf: np.ndarray | None = None  # one buffer for every map's prefix sums
 
     def _lit_frames(self, gi: int) -> list[int]:
         return [k for k in self.groups[gi].frames if self.max_scale[k] > 0]
@@ -2144,6 +2145,7 @@ class _MapSweep:
         if held is not None and held[0] == gi:
             irr = held[1]
         else:
+            self._held_prefix = None
             g = self.groups[gi]
             irr = np.ascontiguousarray(_load_map(g.source, self.grid.shape, g.field))
         self._held = (gi, irr)
@@ -2163,6 +2165,13 @@ class _MapSweep:
         _accumulate_map(self.dose, self.peak, irr, weight, scale, self.overlap, lit)
         return bool(self._lit_frames(gi)) and bool(lit[0])
 
+    def _prefix_of(self, irr: np.ndarray) -> np.ndarray:
+        """Row prefix sums of a map, written into the sweep's one buffer (every map
+        has the grid's shape); the previous contents are gone."""
+        if self._prefix_buf is None:
+            self._prefix_buf = np.empty((irr.shape[0], irr.shape[1] + 1), dtype=np.float64)
+        return prefix_sums(irr, out=self._prefix_buf)
+
     def _maxima(self, irr: np.ndarray, key: str | None = None) -> list[tuple[int, int, float]]:
         """Per angle, the centre and value of the largest disc power of ``irr``.
 
@@ -2174,7 +2183,8 @@ class _MapSweep:
         if key is not None and self.cache is not None and all(t in self.cache for t in tags):
             return [self.cache[t] for t in tags]
         out = []
-        prefix = prefix_sums(irr)
+        self._held_prefix = None
+        prefix = self._prefix_of(irr)
         pooled = Pooled(irr) if self.search else None
         spec = None
         for d, sums in zip(self.diameters, self.sums, strict=True):
@@ -2191,6 +2201,7 @@ class _MapSweep:
                 out.append((r, c, float(sums.at(prefix, irr, [r], [c])[0])))
         if key is not None and self.cache is not None:
             self.cache.update(zip(tags, out, strict=True))
+        self._held_prefix = (irr, prefix)
         return out
 
     def first_pass(self) -> list[_AngleMaps]:
@@ -2207,11 +2218,15 @@ class _MapSweep:
             for j, (r, c, value) in enumerate(self._maxima(irr, self.groups[gi].key)):
                 locs[j].add((r, c))
                 max_power[j] = max(max_power[j], value * top)
-        self._held = None
         fixed = {_peak_location(self.dose), _peak_location(self.peak)}
-        if self.lit:
+        if len(self.lit) > 1:
+            self._held = self._held_prefix = None
             for j, (r, c, _) in enumerate(self._maxima(self.dose)):
                 locs[j].add((r, c))  # the disc-energy maximum
+            self._held_prefix = None
+        # with one lit map the dose map is a multiple of it (the disc integral is
+        # linear), so its disc-energy maxima are that map's maxima, already listed;
+        # the map (and its prefix sums) stay for pass 2
         out = []
         for j in range(nd):
             ordered = sorted(locs[j] | fixed)
@@ -2224,7 +2239,9 @@ class _MapSweep:
         """Fill each angle's table with the exact disc power of every lit map at its locations."""
         for gi in reversed(self.lit):
             irr = self._read(gi)
-            prefix = prefix_sums(irr)
+            held, self._held_prefix = self._held_prefix, None
+            prefix = held[1] if held is not None and held[0] is irr else self._prefix_of(irr)
+            del held
             for a, d, sums in zip(angles, self.diameters, self.sums, strict=True):
                 rr, cc = np.array(a.locations, dtype=np.intp).T
                 if sums is None:
@@ -2232,7 +2249,7 @@ class _MapSweep:
                 else:
                     a.power_at[:, gi] = sums.at(prefix, irr, rr, cc)
             del prefix
-        self._held = None
+        self._held = self._held_prefix = self._prefix_buf = None
 
 
 def assess_sequence(
@@ -2465,36 +2482,46 @@ def _peak_location(values: np.ndarray) -> tuple[int, int]:
     A disc larger than a hot spot holds the same power at many centres; this
     reports the centre of that plateau (the spot itself, or the middle of a
     uniform field) rather than an arbitrary corner of it. The tied samples are
-    visited in row chunks, so a large plateau needs no full-size index arrays.
+    counted and visited in compiled passes, without index arrays.
     """
     rows, cols = values.shape
     flat = int(np.argmax(values))
     top = float(values.flat[flat])
     if top <= 0:
         return divmod(flat, cols)
-    thr = top * (1 - 1e-5)
-    step = max(1, _CHUNK_SAMPLES // cols)
-    n = sum_r = sum_c = 0
-    for i in range(0, rows, step):
-        rr, cc = np.nonzero(values[i : i + step] >= thr)
-        n += rr.size
-        sum_r += int(rr.sum()) + i * rr.size
-        sum_c += int(cc.sum())
-    if n == 1:
-        return divmod(flat, cols)
-    # Integer sums are exact, so these equal the mean of the index arrays.
-    r_mean, c_mean = sum_r / n, sum_c / n
-    best, where = math.inf, (0, 0)
-    for i in range(0, rows, step):
-        rr, cc = np.nonzero(values[i : i + step] >= thr)
-        if not rr.size:
-            continue
-        rr = rr + i
-        d2 = (rr - r_mean) ** 2 + (cc - c_mean) ** 2
-        m = int(np.argmin(d2))
-        if d2[m] < best:
-            best, where = float(d2[m]), (int(rr[m]), int(cc[m]))
-    return where
+    thr = values.dtype.type(top * (1 - 1e-5))  # compared in the map's own precision
+    r, c = _tied_centre(np.ascontiguousarray(values), thr)
+    return (int(r), int(c)) if r >= 0 else divmod(flat, cols)
+
+
+@nb.njit(cache=True, nogil=True)
+def _tied_centre(values, thr):  # pragma: no cover - compiled
+    """Among samples ``>= thr``, the first (row-major) nearest their centroid; ``(-1, -1)``
+    if only one sample is tied (integer index sums are exact)."""
+    rows, cols = values.shape
+    n = 0
+    sum_r = 0
+    sum_c = 0
+    for i in range(rows):
+        for j in range(cols):
+            if values[i, j] >= thr:
+                n += 1
+                sum_r += i
+                sum_c += j
+    if n <= 1:
+        return -1, -1
+    r_mean = sum_r / n
+    c_mean = sum_c / n
+    best = np.inf
+    br = bc = 0
+    for i in range(rows):
+        for j in range(cols):
+            if values[i, j] >= thr:
+                d2 = (i - r_mean) ** 2 + (j - c_mean) ** 2
+                if d2 < best:
+                    best = d2
+                    br, bc = i, j
+    return br, bc
 
 
 def _frames_overlap(starts: np.ndarray, durs: np.ndarray, frame_idx: np.ndarray) -> bool:
