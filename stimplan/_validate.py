@@ -161,20 +161,21 @@ def finite_array(
 _ONE_PASS_SIZE = 1 << 16
 
 
-@nb.njit(parallel=True, cache=True, nogil=True)
+@nb.njit(cache=True, nogil=True)
 def _finite_min_max(flat):  # pragma: no cover - compiled
-    """``(all finite, min, max)`` of a 1-D float array in one pass."""
+    """``(all finite, min, max)`` of a 1-D float array in one pass (single-threaded:
+    a check must not wake a thread pool that the FFTs then share)."""
     lo = np.inf
     hi = -np.inf
-    bad = 0
-    for k in nb.prange(flat.size):
+    for k in range(flat.size):
         x = np.float64(flat[k])
-        if np.isfinite(x):
-            lo = min(lo, x)
-            hi = max(hi, x)
-        else:
-            bad += 1
-    return bad == 0, lo, hi
+        if not np.isfinite(x):
+            return False, 0.0, 0.0
+        if x < lo:
+            lo = x
+        if x > hi:
+            hi = x
+    return True, lo, hi
 
 
 def _interval_text(lo: Any, hi: Any, lo_open: bool, hi_open: bool) -> str:
