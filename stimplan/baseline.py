@@ -25,6 +25,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+import numba as nb
 import numpy as np
 
 from . import _validate as v
@@ -112,6 +113,16 @@ class MaskPrediction:
         return MaskPrediction(self.irradiance_mw_per_mm2 * k, self.grid, p, self.field_area_mm2)
 
 
+@nb.njit(cache=True, nogil=True)
+def _shown_on_field(t, leak, row, col, out):  # pragma: no cover - compiled
+    """``out = (t (1 - leak) + leak) * row[i] * col[j]`` in float32, in one pass."""
+    keep = np.float32(1.0) - leak
+    for i in range(t.shape[0]):
+        r = row[i]
+        for j in range(t.shape[1]):
+            out[i, j] = ((t[i, j] * keep + leak) * r) * col[j]
+
+
 def project_mask(
     intensity: np.ndarray,
     grid: RetinalGrid,
@@ -168,14 +179,15 @@ def project_mask(
     n_inside = float(in_x.sum()) * float(in_y.sum())
     leak = np.float32(1.0 / mask.contrast_ratio)
     scale = p * mask.efficiency * tau / grid.sample_area_mm2
-    irr = t * (np.float32(1.0) - leak)  # shown = t + (1 - t) leak, a new float32 array
-    irr += leak
     if illumination is None:
         if n_inside <= 0:
             raise ConfigError("illumination", "zero on the field", "a non-zero illumination")
-        irr *= in_y[:, np.newaxis]
-        irr *= in_x[np.newaxis, :] * np.float32(scale / n_inside)
+        irr = np.empty(t.shape, dtype=np.float32)
+        col = in_x * np.float32(scale / n_inside)
+        _shown_on_field(np.ascontiguousarray(t, dtype=np.float32), leak, in_y, col, irr)
     else:
+        irr = t * (np.float32(1.0) - leak)  # shown = t + (1 - t) leak, a new float32 array
+        irr += leak
         illum = v.finite_array("illumination", illumination, shape=grid.shape, lo=0.0)
         illum = illum * in_y[:, np.newaxis] * in_x[np.newaxis, :]
         total = float(illum.sum(dtype=np.float64))

@@ -49,3 +49,15 @@ def test_rms_error_after_the_best_scale(rng):
     want = np.sqrt(np.sum(w64 * (k * i64 - t64) ** 2) / np.sum(w64)) / mean_t
     assert rms_error(i, t, w) == pytest.approx(want, rel=1e-10)
     assert rms_error(3.0 * t, t, w) == pytest.approx(0.0, abs=1e-6)  # a scaled copy: no error
+
+
+def test_error_region_is_the_cross_dilation_twice(rng):
+    # Source: scipy.ndimage.binary_dilation with its default cross structure, iterated twice.
+    from scipy import ndimage
+
+    from stimplan.metrics import _dilate_l1
+
+    mask = rng.uniform(0.0, 1.0, (60, 75)) > 0.97
+    mask[0, 0] = mask[-1, -1] = True  # edges
+    want = ndimage.binary_dilation(mask, iterations=2)
+    np.testing.assert_array_equal(_dilate_l1(mask, 2) > 0, want)

@@ -211,14 +211,17 @@ def shifted_power(f, weight_rows, weight_cols, scale, out):  # pragma: no cover 
 
 
 @nb.njit(**_OPTS)
-def power_sums(power, region):  # pragma: no cover - compiled
-    """``(sum(power), sum(power * region))`` of two float32 planes, in float64."""
+def sums_and_scale(power, region, use_region, tau, inv_area):  # pragma: no cover - compiled
+    """``(sum(power), sum(power * region))`` in float64 (region ignored unless
+    ``use_region``), then ``power <- (power * tau) * inv_area`` in place (float32)."""
     total = 0.0
     inside = 0.0
     for i in nb.prange(power.size):
-        x = np.float64(power[i])
-        total += x
-        inside += x * region[i]
+        x = power[i]
+        total += np.float64(x)
+        if use_region:
+            inside += np.float64(x) * region[i]
+        power[i] = (x * tau) * inv_area
     return total, inside
 
 
@@ -235,7 +238,7 @@ class _Set:
         self.group_power = group_power
         self.slm_field_shifted = nb.njit(**opts)(slm_field_shifted.py_func)
         self.shifted_power = nb.njit(**opts)(shifted_power.py_func)
-        self.power_sums = nb.njit(**opts)(power_sums.py_func)
+        self.sums_and_scale = nb.njit(**opts)(sums_and_scale.py_func)
 
 
 #: Kernels that use numba's thread pool (one hologram at a time, all cores).

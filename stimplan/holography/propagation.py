@@ -413,13 +413,12 @@ def predict_retina(
     if signal_region is not None:
         region = v.finite_array("signal_region", signal_region, shape=padded, lo=0, hi=1)
         region = np.ascontiguousarray(region, dtype=np.float32).reshape(-1)
-        sums = (_K.SERIAL if workers == 1 else _K.PARALLEL).power_sums
-        field_mw_pre, signal_pre = sums(power_mod.reshape(-1), region)
-    else:
-        field_mw_pre = float(power_mod.sum(dtype=np.float64))
+    kern = _K.SERIAL if workers == 1 else _K.PARALLEL
+    no_region = np.zeros(1, np.float32)
+    tau32 = np.float32(tau)
+    inv_area = np.float32(1.0 / grid.sample_area_mm2)
 
     zero_pre = 0.0
-    power = power_mod
     if z > 0:
         zphase = None
         if lens is not None or corr is not None:
@@ -430,13 +429,23 @@ def predict_retina(
                 zphase -= corr
         power_zero = _far_power(amp, zphase, pupil, padded, env_r, env_c, z, workers)
         zero_pre = float(power_zero.sum(dtype=np.float64))
-        power = power_mod + power_zero
+        field_mw_pre, signal_pre = (
+            kern.sums_and_scale(power_mod.reshape(-1), region, True, np.float32(1), np.float32(1))
+            if region is not None
+            else (float(power_mod.sum(dtype=np.float64)), 0.0)
+        )
+        power_zero += power_mod
+        irr = power_zero
+        kern.sums_and_scale(irr.reshape(-1), no_region, False, tau32, inv_area)
+    else:  # the sums and the scaling to irradiance in one pass
+        use = region is not None
+        field_mw_pre, signal_pre = kern.sums_and_scale(
+            power_mod.reshape(-1), region if use else no_region, use, tau32, inv_area
+        )
+        irr = power_mod
     central = field_mw_pre + zero_pre
     higher = p_pupil - central
     signal = None if region is None else tau * float(signal_pre)
-    power *= np.float32(tau)
-    irr = power
-    irr *= np.float32(1.0 / grid.sample_area_mm2)
     account = PowerAccount(
         input_mw=p_in,
         pixel_gaps_mw=(1.0 - ff) * p_in,
