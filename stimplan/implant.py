@@ -910,7 +910,8 @@ class Implant:
             )
         raster = self.rasterize(grid, "active")
         m = raster.matrix
-        flat = np.ascontiguousarray(irr, dtype=np.float32).reshape(-1)
+        keep = np.float64 if irr.dtype == np.float64 else np.float32  # no precision lost
+        flat = np.ascontiguousarray(irr, dtype=keep).reshape(-1)
         sample_mm2 = grid.sample_area_mm2
         area_mm2 = raster.row_sums * sample_mm2
         bad = _first_bad(flat)

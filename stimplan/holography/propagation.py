@@ -48,6 +48,7 @@ __all__ = [
     "near_field",
     "pad_centered",
     "pixel_aperture_envelope",
+    "pixel_aperture_axes",
     "PowerAccount",
     "RetinalPrediction",
     "predict_retina",
@@ -134,21 +135,17 @@ def pixel_aperture_envelope(
     .. [1] Goodman (2005), §4.2.2, eq. (4-28): Fraunhofer pattern of a
        rectangular aperture.
     """
-    ey, ex = _aperture_axes(shape, samples_per_order, aperture_fraction)
+    ey, ex = pixel_aperture_axes(shape, samples_per_order, aperture_fraction, np.float64)
     return (ey[:, np.newaxis] * ex[np.newaxis, :]).astype(np.float32)
 
 
-def _aperture_axes(shape, samples_per_order, aperture_fraction) -> tuple[np.ndarray, np.ndarray]:
-    f = v.number("aperture_fraction", aperture_fraction, lo=0, hi=1, lo_open=True)
-    ky = (np.arange(shape[0]) - shape[0] // 2) / samples_per_order[0]
-    kx = (np.arange(shape[1]) - shape[1] // 2) / samples_per_order[1]
-    return np.sinc(f * ky) ** 2, np.sinc(f * kx) ** 2
-
-
 def pixel_aperture_axes(
-    shape: tuple[int, int], samples_per_order: tuple[int, int], aperture_fraction: float
+    shape: tuple[int, int],
+    samples_per_order: tuple[int, int],
+    aperture_fraction: float,
+    dtype=np.float32,
 ) -> tuple[np.ndarray, np.ndarray]:
-    """The two 1-D factors ``(rows, cols)`` of :func:`pixel_aperture_envelope` (float32).
+    """The two 1-D factors ``(rows, cols)`` of :func:`pixel_aperture_envelope`.
 
     The envelope of a rectangular aperture is separable, so a kernel can
     weight a plane by ``ey[k] * ex[l]`` without forming the 2-D envelope.
@@ -157,8 +154,10 @@ def pixel_aperture_axes(
     ----------
     .. [1] Goodman (2005), §4.2.2, eq. (4-28).
     """
-    ey, ex = _aperture_axes(shape, samples_per_order, aperture_fraction)
-    return ey.astype(np.float32), ex.astype(np.float32)
+    f = v.number("aperture_fraction", aperture_fraction, lo=0, hi=1, lo_open=True)
+    ky = (np.arange(shape[0]) - shape[0] // 2) / samples_per_order[0]
+    kx = (np.arange(shape[1]) - shape[1] // 2) / samples_per_order[1]
+    return (np.sinc(f * ky) ** 2).astype(dtype), (np.sinc(f * kx) ** 2).astype(dtype)
 
 
 @dataclass(frozen=True)
@@ -275,7 +274,7 @@ class RetinalPrediction:
 
 def _beam_on_slm(system) -> tuple[np.ndarray, np.ndarray, float]:
     """Beam amplitude (float32), pupil mask (float32 0/1) and beam power inside the pupil
-    (mW) on the SLM pixels; kept for the last few systems with an analytic beam."""
+    (mW) on the SLM pixels; kept for the last two systems with an analytic beam."""
     if system.illumination.profile == "file":  # the file may change between calls
         return _beam_uncached(system)
     return _beam_cached(system)
