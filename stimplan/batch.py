@@ -45,11 +45,18 @@ class Task:
     deps : tuple of int
         Indices of earlier tasks whose results ``fn`` receives.
     label : str
+    after : tuple of int
+        Indices of earlier tasks this one should start after, though it does
+        not need their results: an order for the local threads only (dask's
+        local scheduler runs a finished task's dependents before other ready
+        tasks, so a long independent task can start late). Ignored by the
+        serial and distributed schedulers.
     """
 
     fn: Callable[..., Any]
     deps: tuple[int, ...] = field(default=())
     label: str = ""
+    after: tuple[int, ...] = field(default=())
 
 
 def parallel_workers() -> int:
@@ -62,9 +69,12 @@ def parallel_workers() -> int:
 
 def _check(tasks: Sequence[Task]) -> None:
     for i, t in enumerate(tasks):
-        for d in t.deps:
-            if not (0 <= d < i):
-                raise ConfigError(f"tasks[{i}].deps", d, f"indices of earlier tasks, in [0, {i})")
+        for name in ("deps", "after"):
+            for d in getattr(t, name):
+                if not (0 <= d < i):
+                    raise ConfigError(
+                        f"tasks[{i}].{name}", d, f"indices of earlier tasks, in [0, {i})"
+                    )
 
 
 def run_batch(
@@ -108,11 +118,11 @@ def run_batch(
 
     local = scheduler in ("threads", "sync")
 
-    def wrap(i: int, fn: Callable[..., Any]) -> Callable[..., Any]:
+    def wrap(i: int, fn: Callable[..., Any], n_deps: int) -> Callable[..., Any]:
         cb = on_done if local else None  # a callback cannot travel to remote workers
 
-        def run(*deps: Any) -> Any:
-            out = fn(*deps, workers=1)
+        def run(*args: Any) -> Any:
+            out = fn(*args[:n_deps], workers=1)  # the rest only ordered the start
             if cb:
                 cb(i)
             return out
@@ -122,7 +132,9 @@ def run_batch(
 
     nodes: list[Any] = []
     for i, t in enumerate(tasks):
-        nodes.append(dask.delayed(wrap(i, t.fn), pure=False)(*[nodes[d] for d in t.deps]))
+        before = [nodes[a] for a in t.after] if local else []
+        node = dask.delayed(wrap(i, t.fn, len(t.deps)), pure=False)
+        nodes.append(node(*[nodes[d] for d in t.deps], *before))
     if local:
         n = num_workers or parallel_workers()
         return list(dask.compute(*nodes, scheduler=scheduler, num_workers=n))

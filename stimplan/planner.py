@@ -627,7 +627,7 @@ def plan_sequence(
     -------
     Plan
     """
-    from .batch import Task, run_batch
+    from .batch import Task, parallel_workers, run_batch
     from .sequence import expand_timeline
 
     frames_spec = expand_timeline(spec)
@@ -686,13 +686,20 @@ def plan_sequence(
         i for i, j in enumerate(jobs) if j.base >= 0
     ]
     position = {i: n for n, i in enumerate(order)}
+    # With reused holograms on local threads, each computed hologram past the first
+    # `lanes` starts after the one `lanes` before it: otherwise the threads would
+    # first drain the translated frames of the first ones and start it late.
+    lanes = parallel_workers()
+    n_bases = sum(1 for j in jobs if j.base < 0)
+    chained = n_bases < len(jobs)
     tasks = [
         Task(
             _task_fn(jobs[i], i, spec, system, it_tick, spool),
             (position[jobs[i].base],) if jobs[i].base >= 0 else (),
             jobs[i].kind,
+            (n - lanes,) if chained and lanes <= n < n_bases else (),
         )
-        for i in order
+        for n, i in enumerate(order)
     ]
     t_start = time.perf_counter()
     try:

@@ -164,3 +164,35 @@ def test_local_cluster_batch_equals_serial_run():
         assert np.array_equal(x.hologram.grey, z.hologram.grey)
         np.testing.assert_array_equal(x.readout.power_uw, y.readout.power_uw)
     assert remote.exposure.worst_ratio == serial.exposure.worst_ratio
+
+
+def test_start_order_hints_keep_results_and_order():
+    # common practice: an ordering hint only delays a task's start; it receives nothing
+    import threading
+    import time
+
+    from stimplan.batch import Task, run_batch
+    from stimplan.errors import ConfigError
+
+    events: list[tuple[str, int, float]] = []
+    lock = threading.Lock()
+
+    def job(k):
+        def run(*deps, workers):
+            with lock:
+                events.append(("start", k, time.perf_counter()))
+            time.sleep(0.05)
+            with lock:
+                events.append(("end", k, time.perf_counter()))
+            return (k, len(deps))
+
+        return run
+
+    tasks = [Task(job(0)), Task(job(1)), Task(job(2), after=(0,)), Task(job(3), deps=(1,))]
+    got = run_batch(tasks, scheduler="threads", num_workers=2)
+    assert got == [(0, 0), (1, 0), (2, 0), (3, 1)]  # task 2 gets no result from task 0
+    when = {(kind, k): t for kind, k, t in events}
+    assert when[("start", 2)] >= when[("end", 0)]
+    assert run_batch(tasks, scheduler="serial") == got
+    with pytest.raises(ConfigError):
+        run_batch([Task(job(0), after=(0,))], scheduler="threads")
