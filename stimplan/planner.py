@@ -433,7 +433,7 @@ def _evaluate(name, stim, index, spec, system, holo, workers, design=None) -> St
     )
 
 
-def _initial_from(base: Hologram, shift_rc, grid) -> np.ndarray:
+def _initial_from(base: Hologram, shift_rc) -> np.ndarray:
     """A warm start: the base's designed phase without its off-axis term, moved by ``shift_rc``."""
     rows, cols = base.offset_samples
     return add_phase_ramp(base.phase_rad, shift_rc[0] - rows, shift_rc[1] - cols)
@@ -585,7 +585,7 @@ def _task_fn(job: _Job, index: int, spec, system, tick, spool: str | None = None
     else:
 
         def run(base, *, workers):
-            init = _initial_from(base.hologram, job.shift_rc, system.design_grid())
+            init = _initial_from(base.hologram, job.shift_rc)
             its = max(10, spec.ifta.iterations // 2)
             design = stim.render(system.design_grid())
             holo = _design(stim, spec, system, tick, workers, init, its, design)
