@@ -899,9 +899,9 @@ class Implant:
         """
         if not isinstance(grid, RetinalGrid):
             raise ConfigError("grid", grid, "a RetinalGrid")
-        irr = np.asarray(irradiance_mw_per_mm2)
-        if irr.shape != grid.shape or irr.dtype.kind not in "fiu":
-            raise ConfigError("irradiance_mw_per_mm2", irr, f"a real array of shape {grid.shape}")
+        raw = np.asarray(irradiance_mw_per_mm2)
+        keep = np.float64 if raw.dtype == np.float64 else np.float32  # no precision lost
+        irr = v.finite_array("irradiance_mw_per_mm2", raw, shape=grid.shape, lo=0.0, dtype=keep)
         if responsivity_a_per_w is None:
             resp = silicon_responsivity_limit_a_per_w(wavelength_nm)
         else:
@@ -910,17 +910,9 @@ class Implant:
             )
         raster = self.rasterize(grid, "active")
         m = raster.matrix
-        keep = np.float64 if irr.dtype == np.float64 else np.float32  # no precision lost
-        flat = np.ascontiguousarray(irr, dtype=keep).reshape(-1)
+        flat = np.ascontiguousarray(irr).reshape(-1)
         sample_mm2 = grid.sample_area_mm2
         area_mm2 = raster.row_sums * sample_mm2
-        bad = _first_bad(flat)
-        if bad >= 0:
-            raise ConfigError(
-                "irradiance_mw_per_mm2",
-                f"{float(flat[bad])} at sample {np.unravel_index(bad, grid.shape)}",
-                "finite values >= 0 (mW/mm²)",
-            )
         sums, lo, hi = _pixel_sums(m.indptr, m.indices, m.data, flat)
         power_mw = sums * sample_mm2
         with np.errstate(divide="ignore", invalid="ignore"):
@@ -977,16 +969,6 @@ def _pixel_sums(indptr, indices, data, flat):  # pragma: no cover - compiled
         elif indptr[i + 1] > indptr[i]:
             lo[i] = hi[i] = best_x
     return sums, lo, hi
-
-
-@nb.njit(cache=True, nogil=True)
-def _first_bad(flat):  # pragma: no cover - compiled
-    """Index of the first value that is not finite and >= 0, or -1."""
-    for k in range(flat.size):
-        x = flat[k]
-        if not (x >= 0 and x < np.inf):
-            return k
-    return -1
 
 
 @lru_cache(maxsize=16)
