@@ -12,17 +12,19 @@ from __future__ import annotations
 
 __all__ = ["EDITION", "EDITION_SHORT", "CAUTIONS", "CAUTION_SHORT"]
 
-#: The edition the retinal limits follow. The correction-factor structure is
-#: published (ICNIRP, Health Phys. 105, 271 (2013); IEC 60825-1:2014, Annex A;
-#: reproduced in structure by Directive 2006/25/EC, Annex II). The 2013/2014
-#: breakpoints and table values were written from memory of the tables.
+#: The limits the retinal figures follow: at every duration and angle the lower of
+#: the 2000 edition (ICNIRP 2000 / IEC 60825-1:2001, published as law text in
+#: Directive 2006/25/EC, Annex II) and the 2014 edition (ICNIRP 2013 /
+#: IEC 60825-1:2014, whose breakpoints were entered from memory of copies of its
+#: tables). See :mod:`stimplan.exposure.factors`.
 EDITION = (
-    "ICNIRP 2013 / IEC 60825-1:2014 (retinal limits, values from memory of the tables; "
-    "check against the full text)"
+    "the lower of Directive 2006/25/EC Annex II (ICNIRP 2000 values, law text) and "
+    "ICNIRP 2013 / IEC 60825-1:2014 (values from memory of the tables), retinal thermal "
+    "limits, 700-1200 nm"
 )
 
 #: A short form of :data:`EDITION` for one-line messages.
-EDITION_SHORT = "ICNIRP 2013 / IEC 60825-1:2014, from memory"
+EDITION_SHORT = "lower of Directive 2006/25/EC and ICNIRP 2013, retinal thermal"
 
 CAUTIONS = (
     "These exposure figures are an estimate computed by stimplan, not a safety approval. "

@@ -827,10 +827,16 @@ def _assess(frames, plans, which: str, wavelength_nm: float, spec, power_of=None
                 load, tuple(sorted(pulses, key=lambda p: p.start_ms)), sp.name, key=f"{which}-{hi}"
             )
         )
+    # the limits go to the retina with the transmission the prediction used, so it cancels
+    eye = xp.EyeModel(
+        transmission=spec.system.eye.transmission,
+        source="f = 17 mm; τ = the planned eye's transmission, as in the prediction",
+    )
     return xp.assess_sequence(
         xframes,
         grid,
         wavelength_nm,
+        eye=eye,
         protocol=spec.protocol,
         subject=spec.system.eye.name,
         maxima_cache=cache,
