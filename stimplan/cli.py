@@ -78,6 +78,10 @@ def plan_summary(plan) -> dict:
         "exposure": {
             "verdict": plan.verdict,
             "worst_ratio": 0.0 if e is None else e.worst_ratio,
+            "found_ratio": None if e is None else e.found_ratio,
+            "protocol_ratio": None if e is None else e.protocol_ratio,
+            "binding_limit": None if e is None else e.binding_limit,
+            "binding": None if e is None else e.binding_text(),
             "binding_rule": None if e is None else e.binding_rule,
             "margin": None if e is None else e.margin,
             "edition": None if e is None else e.edition,
@@ -146,12 +150,15 @@ def print_table(plan, file=None) -> None:
         file=file,
     )
     line = (
-        f"sequence exposure: {_fmt(e['worst_ratio'])} of the limit "
-        f"({e['binding_rule'] or '-'}), verdict: {e['verdict']}"
+        f"sequence exposure: standard {_fmt(e['worst_ratio'])} of the limit at most "
+        f"({e['binding_rule'] or '-'})"
     )
     if e["protocol"]:
         line += f"; protocol cap {e['protocol']['worst_ratio']:.3g} ({e['protocol']['verdict']})"
+    line += f"; verdict: {e['verdict']}"
     print(line, file=file)
+    if e["binding"]:
+        print(f"what binds: {e['binding']}", file=file)
     if e["mask_equal_irradiance_worst_ratio"] is not None:
         print(
             f"the mask, for the same ON-pixel irradiance: "

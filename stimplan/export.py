@@ -207,10 +207,10 @@ def export_plan(
     ack = None
     if plan.verdict == "above":
         if not acknowledge_reason or not str(acknowledge_reason).strip():
-            ratio = plan.exposure.worst_ratio if plan.exposure else float("nan")
+            what = plan.exposure.binding_text() if plan.exposure else "no assessment"
             raise ExposureLimitError(
                 "exposure",
-                f"{ratio:.3g} of the limit",
+                what,
                 "within the limit, or an acknowledgement with a reason (--acknowledge REASON)",
                 "the sequence is estimated above a retinal exposure limit",
             )

@@ -255,7 +255,11 @@ def render_report(plan) -> str:
         rows = [
             ("edition", EDITION),
             ("verdict", e.verdict),
-            ("worst ratio to the standard's limit", f"{e.worst_ratio:.3g} ({e.binding_rule})"),
+            (
+                "worst ratio to the standard's limit (upper bound)",
+                f"{e.worst_ratio:.3g} ({e.binding_rule}); found {e.found_ratio:.3g} at one place",
+            ),
+            ("what binds", e.binding_text()),
             ("margin", f"{e.margin:.3g}×"),
             (
                 "worst place",

@@ -86,6 +86,8 @@ class Readout:
         Worst ratio to the protocol cap.
     verdict : str
         ``"within"`` or ``"above"`` (standard or protocol cap).
+    binding : str or None
+        Which limit binds, its ratio and the figure that decides.
     beam_at_pupil_mm, pupil_mm : float
     overfills_pupil : bool
     cautions : str
@@ -103,6 +105,7 @@ class Readout:
     beam_at_pupil_mm: float
     pupil_mm: float
     overfills_pupil: bool
+    binding: str | None = None
     cautions: str = field(default=CAUTIONS, repr=False)
 
 
@@ -151,6 +154,7 @@ def readout_from_plan(plan, title: str | None = None) -> Readout:
         beam_at_pupil_mm=system.beam_diameter_at_pupil_mm,
         pupil_mm=system.eye.pupil_diameter_mm,
         overfills_pupil=system.overfills_pupil,
+        binding=None if e is None else e.binding_text(),
     )
 
 
@@ -186,6 +190,8 @@ def readout_text(r: Readout) -> str:
     )
     if r.protocol_ratio is not None:
         lines.append(f"protocol cap: worst {r.protocol_ratio:.3g} of the cap")
+    if r.binding:
+        lines.append(f"what binds: {r.binding}")
     lines.append(f"verdict: {r.verdict} the limit")
     pupil = "OVERFILLS" if r.overfills_pupil else "fits"
     lines.append(
@@ -230,7 +236,10 @@ def plan_alerts(plan, subject: str = "the sequence") -> list[str]:
             parts.append(
                 f"{e.protocol.worst_ratio:.3g} of the protocol cap '{e.protocol.cap.name}'"
             )
-        out.append(f"stimplan: {subject} is above the limit: {'; '.join(parts)}. {CAUTION_SHORT}")
+        out.append(
+            f"stimplan: {subject} is above the limit: {'; '.join(parts)}; "
+            f"{e.binding_text()}. {CAUTION_SHORT}"
+        )
     names = {sp.hologram_index: sp for sp in plan.holograms}
     for hi, a in sorted(plan.stimulus_exposure.items()):
         if a.verdict == "above" and len(plan.stimulus_exposure) > 1:

@@ -592,10 +592,10 @@ class SequencePanel(Container):
             return None
         reason = self.reason.value.strip()
         if self.plan.verdict == "above" and not reason:
-            ratio = self.plan.exposure.worst_ratio if self.plan.exposure else float("nan")
+            what = self.plan.exposure.binding_text() if self.plan.exposure else "no assessment"
             msg = (
-                f"export refused: the sequence is estimated above a limit (worst {ratio:.3g} of "
-                "the standard's limit, or above the protocol cap). Give a reason to export "
+                f"export refused: the sequence is estimated above a limit ({what}). "
+                "Give a reason to export "
                 f"anyway; it is recorded in the manifest. {CAUTION_SHORT}"
             )
             self.export_status.value = msg
