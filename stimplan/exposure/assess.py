@@ -88,7 +88,7 @@ _FFT_ALLOWANCE = 1e-5
 _MAX_LEVELS = 12
 
 
-def default_acceptance_angles_mrad(n: int = 13) -> tuple[float, ...]:
+def default_acceptance_angles_mrad(n: int = 7) -> tuple[float, ...]:
     """The starting acceptance angles: ``n`` log-spaced from 1.5 to 100 mrad.
 
     The assessment adds angles where the bound between two of them is loose.
@@ -326,41 +326,54 @@ class _MapSweep:
             if self._lit_frames(gi) and bool(lit[0]):
                 self.lit.append(gi)
 
-    def _map_maxima(self, irr: np.ndarray, key, diameters) -> list[tuple[int, int, float]]:
+    def _map_maxima(self, irr: np.ndarray, key, diameters, integ) -> list[tuple[int, int, float]]:
         g = self.grid
         tags = [(key, g.shape, g.pitch_x_um, g.pitch_y_um, d) for d in diameters]
-        if key is not None and self.cache is not None and all(t in self.cache for t in tags):
-            return [self.cache[t] for t in tags]
-        integ = DiscIntegrator(g, max(diameters))
-        prefix = prefix_sums(irr)
-        f32 = irr if irr.dtype == np.float32 else irr.astype(np.float32)
-        spec = None
-        out = []
-        for d in diameters:
-            if integ.is_point(d):
-                r, c = peak_location(irr)
-                out.append((r, c, float(irr[r, c]) * point_area_mm2(d)))
-                continue
-            if spec is None:
-                spec = integ.spectrum(f32)
-            pm = integ.power_map_mw(f32, d, spec)
-            r, c = peak_location(pm)
-            exact = float(
-                _disc_sums(d, g.pitch_x_um, g.pitch_y_um, g.shape).at(prefix, irr, [r], [c])[0]
-            )
-            out.append((r, c, max(exact, float(pm[r, c])) * (1 + _FFT_ALLOWANCE)))
-        if key is not None and self.cache is not None:
-            self.cache.update(zip(tags, out, strict=True))
-        return out
+        cache = self.cache if (key is not None and self.cache is not None) else {}
+        todo = [d for d, t in zip(diameters, tags, strict=True) if t not in cache]
+        if todo:
+            prefix = prefix_sums(irr)
+            f32 = irr if irr.dtype == np.float32 else irr.astype(np.float32)
+            spec = None
+            for d in todo:
+                if integ.is_point(d):
+                    r, c = peak_location(irr)
+                    value = float(irr[r, c]) * point_area_mm2(d)
+                else:
+                    if spec is None:
+                        spec = integ.spectrum(f32)
+                    pm = integ.power_map_mw(f32, d, spec)
+                    r, c = peak_location(pm)
+                    sums = _disc_sums(d, g.pitch_x_um, g.pitch_y_um, g.shape)
+                    exact = float(sums.at(prefix, irr, [r], [c])[0])
+                    value = max(exact, float(pm[r, c])) * (1 + _FFT_ALLOWANCE)
+                cache[(key, g.shape, g.pitch_x_um, g.pitch_y_um, d)] = (r, c, value)
+        return [cache[t] for t in tags]
 
     def maxima(self, diameters: Sequence[float]) -> dict[int, list[tuple[int, int, float]]]:
-        """Per lit map group, per diameter: centre and bound of the largest disc power."""
-        return {
-            gi: self._map_maxima(self._read(gi), self.groups[gi].key, diameters) for gi in self.lit
-        }
+        """Per lit map group, per diameter: centre and bound of the largest disc power.
 
-    def dose_maxima(self, diameters: Sequence[float]) -> list[tuple[int, int, float]]:
-        return self._map_maxima(self.dose, None, diameters)
+        One integrator serves every map, so each disc kernel is transformed once.
+        """
+        integ = DiscIntegrator(self.grid, max(diameters))
+        out = {
+            gi: self._map_maxima(self._read(gi), self.groups[gi].key, diameters, integ)
+            for gi in self.lit
+        }
+        integ.forget()
+        return out
+
+    def dose_maxima(self, diameters: Sequence[float], per_map) -> list[tuple[int, int, float]]:
+        """The dose map's largest disc energies. With one lit map the dose map is a
+        multiple of it (the disc integral is linear), so no transform is needed."""
+        if len(self.lit) == 1:
+            gi = self.lit[0]
+            w = sum(float(self.weight_s[k]) for k in self.groups[gi].frames)
+            return [(r, c, value * w) for (r, c, value) in per_map[gi]]
+        integ = DiscIntegrator(self.grid, max(diameters))
+        out = self._map_maxima(self.dose, None, diameters, integ)
+        integ.forget()
+        return out
 
     def powers_at(self, diameters, locations) -> dict[int, list[np.ndarray]]:
         """Per lit map group, per diameter: exact disc powers at that diameter's locations."""
@@ -508,13 +521,21 @@ def assess_sequence(
     per_map: dict[float, dict[int, tuple[int, int, float]]] = {}
     dose_max: dict[float, tuple[int, int, float]] = {}
 
+    ladder = list(angles)
+
     def measure(new: list[float]) -> None:
         ds = [diam[a] for a in new]
         found = sweep.maxima(ds)
-        dm = sweep.dose_maxima(ds)
         for j, a in enumerate(new):
             per_map[a] = {gi: found[gi][j] for gi in sweep.lit}
-            dose_max[a] = dm[j]
+        if len(sweep.lit) == 1 or not dose_max:
+            for a, m in zip(new, sweep.dose_maxima(ds, found), strict=True):
+                dose_max[a] = m
+        else:
+            # a disc energy never falls as the disc grows: the next starting angle above
+            # bounds the dose map's largest disc energy at an added angle
+            for a in new:
+                dose_max[a] = dose_max[min(b for b in ladder if b >= a)]
 
     lit_frames = np.flatnonzero(np.isin(group_of, sweep.lit) & (max_scale > 0))
 
