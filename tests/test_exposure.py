@@ -546,3 +546,67 @@ def _lazy_from_disk(tmp_path, grid, n) -> list:
         pulses = ex.periodic_pulses(10.0, frequency_hz=20.0, duration_ms=200.0, start_ms=200.0 * k)
         frames.append(ex.Frame(lambda path=path: np.load(path), pulses, f"spot {k}"))
     return frames
+
+
+def test_frames_of_one_map_are_grouped():
+    # common practice: frames that show one map are read once.
+    from stimplan.exposure.frames import as_frames, map_groups
+
+    grid = RetinalGrid((16, 16), 10.0, 10.0)
+    a, b = _spots(grid, 2, seed=3)
+    base = b * np.float32(1.0)
+    fresh = _Counted(a)
+    frames = as_frames(
+        [
+            ex.Frame(a, _train(0)),
+            ex.Frame(fresh, _train(1)),  # a fresh copy: a map of its own
+            ex.Frame(fresh, _train(2)),  # the same callable
+            ex.Frame(lambda: base, _train(3)),
+            ex.Frame(base, _train(4)),  # the array the callables return
+            ex.Frame(lambda: base, _train(5)),
+            ex.Frame(_not_read, _train(6), key="k"),
+            ex.Frame(a, _train(7), key="k"),  # the key decides, not the array
+        ],
+        grid,
+    )
+    groups = map_groups(frames)
+    assert [g.frames for g in groups] == [[0], [1, 2], [3, 4, 5], [6, 7]]
+    assert fresh.calls == 1
+
+
+def test_lazy_frames_give_the_closed_form_figures():
+    # Full field, 5 s: the worst acceptance angle is 100 mrad (C_E = 100/1.5), and the
+    # row is 18 C_A C_E t^0.75 (Directive 2006/25/EC, Table 2.2, 1.8e-5 to 10 s).
+    grid = RetinalGrid((256, 256), 10.0, 10.0)
+    eye = ex.EyeModel(transmission=TAU)
+    frame = ex.Frame(lambda: np.full(grid.shape, 0.1), (ex.Pulse(0.0, 5_000.0),))
+    assert frame.is_lazy and not ex.Frame(np.zeros(grid.shape), ()).is_lazy
+    res = ex.assess_sequence([frame], grid, 880.0, eye=eye)
+    assert res.margin == pytest.approx(_full_field_limit_mw_per_mm2(5.0) / 0.1, rel=2e-2)
+    assert res.margin <= _full_field_limit_mw_per_mm2(5.0) / 0.1 * (1 + 1e-6)  # a bound
+    frames = [
+        ex.Frame(lambda: np.full(grid.shape, 0.1), (ex.Pulse(1000.0 * k, 1000.0),))
+        for k in range(10)
+    ]
+    res10 = ex.assess_sequence(frames, grid, 880.0, alphas_mrad=(100.0,), eye=eye)
+    assert res10.max_dose_mj_per_mm2 == pytest.approx(0.1 * 10.0, rel=1e-6)
+    assert res10.peak_irradiance_mw_per_mm2 == pytest.approx(0.1, rel=1e-6)
+    assert CAUTIONS in res10.summary() and res10.edition == EDITION
+
+
+def test_shared_maxima_cache_gives_the_same_assessment():
+    # common practice: keyed maps' maxima taken from the cache give a fresh assessment's
+    # results.
+    grid = RetinalGrid((64, 60), 12.0, 12.0)
+    a, b = _spots(grid, 2, seed=11)
+    frames = [
+        ex.Frame(a, _train(0), "a", key="map-a"),
+        ex.Frame(b, _train(10), "b", key="map-b"),
+    ]
+    cache: dict = {}
+    whole = ex.assess_sequence(frames, grid, 880.0, maxima_cache=cache)
+    assert cache
+    alone = ex.assess_sequence(frames[1:], grid, 880.0, maxima_cache=cache)
+    fresh = ex.assess_sequence(frames[1:], grid, 880.0)
+    assert alone.worst_ratio == fresh.worst_ratio
+    assert whole.worst_ratio == ex.assess_sequence(frames, grid, 880.0).worst_ratio
