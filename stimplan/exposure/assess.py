@@ -286,6 +286,36 @@ class ExposureAssessment:
         return out
 
 
+@dataclass(frozen=True)
+class _Timeline:
+    """A sequence's pulses, which map each shows, and what rule 3 counts."""
+
+    starts_s: np.ndarray
+    durs_s: np.ndarray
+    scales: np.ndarray
+    frame_idx: np.ndarray
+    group_of: np.ndarray
+    lit_frames: np.ndarray
+    wavelength_nm: float
+    eye: EyeModel
+    counted: dict
+
+    def rules(self, power_of_group, limit_angle: float, cap_mj: float = math.inf):
+        """Rules 1-3 with the disc power ``power_of_group(gi)`` of each map group."""
+        fp = np.zeros(len(self.group_of))
+        fp[self.lit_frames] = [power_of_group(self.group_of[k]) for k in self.lit_frames]
+        return timeline_rules(
+            self.starts_s,
+            self.durs_s,
+            fp[self.frame_idx] * self.scales,
+            self.wavelength_nm,
+            limit_angle,
+            self.eye,
+            self.counted,
+            energy_cap_mj=cap_mj,
+        )
+
+
 @lru_cache(maxsize=64)
 def _disc_sums(diameter_um: float, pitch_x_um: float, pitch_y_um: float, shape) -> DiscSums:
     """One :class:`DiscSums` per disc and grid, shared by the assessments of a session."""
@@ -538,15 +568,12 @@ def assess_sequence(
                 dose_max[a] = dose_max[min(b for b in ladder if b >= a)]
 
     lit_frames = np.flatnonzero(np.isin(group_of, sweep.lit) & (max_scale > 0))
+    tl = _Timeline(starts, durs, scales, frame_idx, group_of, lit_frames, lam, eye, counted)
 
     def virtual(powers_angle: float, limit_angle: float) -> dict[str, RuleResult]:
         """Rules with every map's largest disc power at ``powers_angle`` placed together."""
-        fp = np.zeros(n_f)
-        fp[lit_frames] = [per_map[powers_angle][group_of[k]][2] for k in lit_frames]
-        cap = dose_max[powers_angle][2]
-        return timeline_rules(
-            starts, durs, fp[frame_idx] * scales, lam, limit_angle, eye, counted, energy_cap_mj=cap
-        )
+        at = per_map[powers_angle]
+        return tl.rules(lambda gi: at[gi][2], limit_angle, dose_max[powers_angle][2])
 
     measure(angles)
     values = {a: virtual(a, a) for a in angles}
@@ -579,27 +606,7 @@ def assess_sequence(
     upper = {r: empty_rule(r, angles[0]) for r in RULES}
     for res in list(bounds.values()) + list(values.values()):
         upper = merge_rules(upper, res)
-    found, angle_rows = _found_values(
-        sweep,
-        angles,
-        diam,
-        per_map,
-        dose_max,
-        grid,
-        peak,
-        dose,
-        starts,
-        durs,
-        scales,
-        frame_idx,
-        group_of,
-        lit_frames,
-        n_f,
-        lam,
-        eye,
-        counted,
-        values,
-    )
+    found, angle_rows = _found_values(sweep, tl, angles, diam, per_map, dose_max, values)
     rules = {}
     for r in RULES:
         f = found[r]
@@ -649,29 +656,10 @@ def assess_sequence(
     )
 
 
-def _found_values(
-    sweep,
-    angles,
-    diam,
-    per_map,
-    dose_max,
-    grid,
-    peak,
-    dose,
-    starts,
-    durs,
-    scales,
-    frame_idx,
-    group_of,
-    lit_frames,
-    n_f,
-    lam,
-    eye,
-    counted,
-    values,
-):
+def _found_values(sweep, tl, angles, diam, per_map, dose_max, values):
     """Rules evaluated exactly at the candidate places of every angle."""
-    fixed = {peak_location(dose), peak_location(peak)}
+    grid = sweep.grid
+    fixed = {peak_location(sweep.dose), peak_location(sweep.peak)}
     locs = []
     for a in angles:
         here = {(r, c) for (r, c, _) in per_map[a].values()} | {dose_max[a][:2]} | fixed
@@ -681,16 +669,14 @@ def _found_values(
     rows = []
     for j, a in enumerate(angles):
         for n, (row, col) in enumerate(locs[j]):
-            fp = np.zeros(n_f)
-            fp[lit_frames] = [powers[group_of[k]][j][n] for k in lit_frames]
-            out = timeline_rules(starts, durs, fp[frame_idx] * scales, lam, a, eye, counted)
+            out = tl.rules(lambda gi, j=j, n=n: powers[gi][j][n], a)
             x, y = grid.point_of(row, col)
             found = merge_rules(
                 found, {r: replace(out[r], x_um=float(x), y_um=float(y)) for r in RULES}
             )
         b = binding_rule(values[a])
         top = max(m[2] for m in per_map[a].values())
-        rows.append(AngleResult(a, diam[a], top * float(scales.max()), b.ratio, b.rule))
+        rows.append(AngleResult(a, diam[a], top * float(tl.scales.max()), b.ratio, b.rule))
     return found, rows
 
 
