@@ -364,15 +364,13 @@ class _MapSweep:
         if todo:
             prefix = prefix_sums(irr)
             f32 = irr if irr.dtype == np.float32 else irr.astype(np.float32)
-            spec = None
-            for d in todo:
+            spectra: dict = {}
+            for d in sorted(todo, key=integ.shape_for):
                 if integ.is_point(d):
                     r, c = peak_location(irr)
                     value = float(irr[r, c]) * point_area_mm2(d)
                 else:
-                    if spec is None:
-                        spec = integ.spectrum(f32)
-                    pm = integ.power_map_mw(f32, d, spec)
+                    pm = integ.power_map_mw(f32, d, spectra)
                     r, c = peak_location(pm)
                     sums = _disc_sums(d, g.pitch_x_um, g.pitch_y_um, g.shape)
                     exact = float(sums.at(prefix, irr, [r], [c])[0])

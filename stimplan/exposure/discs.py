@@ -28,6 +28,7 @@ import scipy.fft as sfft
 from .. import _validate as v
 from ..errors import ConfigError
 from ..grid import RetinalGrid
+from .disc_bound import cell_areas_um2
 from .retina import HUMAN_EYE, EyeModel, retinal_image_diameter_um
 
 __all__ = [
@@ -63,6 +64,8 @@ def disc_kernel(
 ) -> np.ndarray:
     """Area-weighted disc: each sample holds (area of its cell inside the disc) in mm^2.
 
+    The areas are exact (closed form, :func:`stimplan.exposure.disc_bound.cell_areas_um2`).
+
     References
     ----------
     .. [1] IEC 60825-1:2014, Annex A: the power is averaged over the acceptance disc.
@@ -70,23 +73,7 @@ def disc_kernel(
     r = diameter_um / 2.0
     hy = min(int(math.ceil(r / py + 0.5)), max_half_rows)
     hx = min(int(math.ceil(r / px + 0.5)), max_half_cols)
-    yy = np.abs(np.arange(-hy, hy + 1) * py)
-    xx = np.abs(np.arange(-hx, hx + 1) * px)
-    near = np.hypot(np.maximum(yy - py / 2, 0)[:, None], np.maximum(xx - px / 2, 0)[None, :])
-    far = np.hypot((yy + py / 2)[:, None], (xx + px / 2)[None, :])
-    frac = (far <= r).astype(np.float64)
-    edge = (near < r) & (far > r)
-    if np.any(edge):
-        ry, rx = np.nonzero(edge)
-        m = len(ry)
-        ns = 32 if m < 4000 else 16
-        sub = (np.arange(ns) + 0.5) / ns - 0.5
-        cy = (ry - hy) * py
-        cx = (rx - hx) * px
-        y = cy[:, None, None] + sub[None, :, None] * py
-        x = cx[:, None, None] + sub[None, None, :] * px
-        frac[ry, rx] = np.mean((x * x + y * y) <= r * r, axis=(1, 2))
-    return (frac * (px * py * 1e-6)).astype(np.float32)
+    return (cell_areas_um2(r, px, py, hy, hx) * 1e-6).astype(np.float32)
 
 
 def prefix_sums(irradiance: np.ndarray, out: np.ndarray | None = None) -> np.ndarray:
@@ -204,49 +191,62 @@ def point_area_mm2(diameter_um: float) -> float:
 
 
 class DiscIntegrator:
-    """Disc power maps on one grid, zero-padded for the largest disc.
+    """Disc power maps on one grid, zero-padded as much as each disc needs.
 
-    The padded FFT shape is fixed by the largest diameter, so one spectrum of a
-    map (:meth:`spectrum`) serves every diameter. The spectra of the disc
+    The padded FFT shapes come in a few tiers (for the largest disc and for
+    1/2, 1/4 and 1/8 of its radius), so a small disc is not convolved on the
+    shape of the largest one; one spectrum of a map per tier
+    (:meth:`spectrum`) serves every disc of that tier. The spectra of the disc
     kernels are cached per diameter until :meth:`forget`.
     """
 
     def __init__(self, grid: RetinalGrid, max_diameter_um: float):
         self.grid = grid
-        self.shape = self._padded_shape(max_diameter_um)
+        hy, hx = self._kernel_half(max_diameter_um)
+        self._tiers = sorted(
+            {self._padded((hy + k - 1) // k, (hx + k - 1) // k) for k in (1, 2, 4, 8)}
+        )
         self._kernels: dict[float, tuple[np.ndarray, tuple[int, int]]] = {}
 
     def _kernel_half(self, diameter_um: float) -> tuple[int, int]:
         g = self.grid
         return kernel_half(diameter_um, g.pitch_x_um, g.pitch_y_um, g.rows, g.cols)
 
-    def _padded_shape(self, diameter_um: float) -> tuple[int, int]:
-        hy, hx = self._kernel_half(diameter_um)
+    def _padded(self, hy: int, hx: int) -> tuple[int, int]:
         rows, cols = self.grid.shape
         return (
             sfft.next_fast_len(rows + 2 * hy, real=True),
             sfft.next_fast_len(cols + 2 * hx, real=True),
         )
 
+    def shape_for(self, diameter_um: float) -> tuple[int, int]:
+        """The padded FFT shape a disc is convolved on (the smallest tier that holds it)."""
+        need = self._padded(*self._kernel_half(diameter_um))
+        for t in self._tiers:
+            if t[0] >= need[0] and t[1] >= need[1]:
+                return t
+        self._tiers.append(need)
+        return need
+
     def is_point(self, diameter_um: float) -> bool:
         """A disc that fits in one sample is integrated as a point (no FFT)."""
         return diameter_um <= min(self.grid.pitch_x_um, self.grid.pitch_y_um)
 
-    def spectrum(self, irradiance: np.ndarray) -> np.ndarray:
-        """Spectrum of a map on the padded shape, for :meth:`power_map_mw`."""
-        return sfft.rfft2(irradiance, s=self.shape, workers=-1)
+    def spectrum(self, irradiance: np.ndarray, shape: tuple[int, int]) -> np.ndarray:
+        """Spectrum of a map on a padded ``shape`` (:meth:`shape_for`), for :meth:`power_map_mw`."""
+        return sfft.rfft2(irradiance, s=shape, workers=-1)
 
     def forget(self) -> None:
         """Drop the cached kernel spectra."""
         self._kernels.clear()
 
-    def _kernel_spectrum(self, diameter_um: float) -> tuple[np.ndarray, tuple[int, int]]:
+    def _kernel_spectrum(self, diameter_um: float, shape) -> tuple[np.ndarray, tuple[int, int]]:
         hit = self._kernels.get(diameter_um)
-        if hit is None:
+        if hit is None or hit[0].shape != (shape[0], shape[1] // 2 + 1):
             g = self.grid
             hy, hx = self._kernel_half(diameter_um)
             kernel = disc_kernel(diameter_um, g.pitch_x_um, g.pitch_y_um, hy, hx)
-            hit = (sfft.rfft2(kernel, s=self.shape, workers=-1), kernel.shape)
+            hit = (sfft.rfft2(kernel, s=shape, workers=-1), kernel.shape)
             self._kernels[diameter_um] = hit
         return hit
 
@@ -254,25 +254,29 @@ class DiscIntegrator:
         self,
         irradiance: np.ndarray | None,
         diameter_um: float,
-        spectrum: np.ndarray | None = None,
+        spectra: dict | None = None,
     ) -> np.ndarray:
-        """Disc power map (float32 on the grid) of a map, given as ``irradiance``
-        or by its :meth:`spectrum` (which saves the FFT; a disc that is a point
-        needs the map itself)."""
+        """Disc power map (float32 on the grid) of a map.
+
+        ``spectra`` (a dict, filled as needed) keeps the map's spectrum on the
+        last padded shape used, so that discs of one tier, taken in a row,
+        transform the map once (only one spectrum is held at a time). A disc
+        that is a point needs only the map itself.
+        """
         g = self.grid
         if self.is_point(diameter_um):
             # A disc that fits in one sample is a point: the sample's irradiance times its area.
             assert irradiance is not None
             return irradiance * np.float32(point_area_mm2(diameter_um))
-        need = self._padded_shape(diameter_um)
-        if need[0] > self.shape[0] or need[1] > self.shape[1]:
-            self.shape = need
-            self._kernels.clear()
-        if spectrum is None or spectrum.shape != (self.shape[0], self.shape[1] // 2 + 1):
+        shape = self.shape_for(diameter_um)
+        spectra = {} if spectra is None else spectra
+        spectrum = spectra.get(shape)
+        if spectrum is None:
             assert irradiance is not None
-            spectrum = self.spectrum(irradiance)
-        kspec, (kh, kw) = self._kernel_spectrum(diameter_um)
-        full = sfft.irfft2(spectrum * kspec, s=self.shape, workers=-1)
+            spectra.clear()
+            spectrum = spectra[shape] = self.spectrum(irradiance, shape)
+        kspec, (kh, kw) = self._kernel_spectrum(diameter_um, shape)
+        full = sfft.irfft2(spectrum * kspec, s=shape, workers=-1)
         out = np.array(full[kh // 2 : kh // 2 + g.rows, kw // 2 : kw // 2 + g.cols])
         del full
         # Float32 FFT round-off: values below 1e-6 of the largest are set to zero, so
