@@ -133,3 +133,28 @@ def test_a_shift_by_half_a_sample_gives_the_same_bound():
 def test_an_empty_map_has_no_power():
     m = largest_disc_power(PreparedMap.of(np.zeros((8, 8), np.float32), 1.0, 1.0), 3.0)
     assert m.bound_mw == 0.0 and m.found_mw == 0.0 and m.complete
+
+
+@pytest.mark.parametrize("name", ["speckle", "uniform"])
+@pytest.mark.parametrize("d_um", [9.0, 40.0, 150.0])
+def test_the_fft_round_off_bound_covers_the_float32_transform(name, d_um):
+    from scipy.signal import correlate
+
+    from stimplan.exposure.discs import DiscIntegrator, disc_kernel
+    from stimplan.grid import RetinalGrid
+
+    n, pitch = 96, 2.0
+    irr = _speckle(n, 7) if name == "speckle" else np.full((n, n), 3.0, np.float32)
+    grid = RetinalGrid((n, n), pitch, pitch)
+    integ = DiscIntegrator(grid, d_um)
+    pm = integ.power_map_mw(irr, d_um).astype(np.float64)
+    hy = (disc_kernel(d_um, pitch, pitch, n - 1, n - 1).shape[0] - 1) // 2
+    kernel = disc_kernel(d_um, pitch, pitch, hy, hy).astype(np.float64)
+    # Source: scipy.signal.correlate, direct float64 sums (the reference convolution)
+    ref = correlate(irr.astype(np.float64), kernel, mode="same", method="direct")
+    a64 = irr.astype(np.float64)
+    err = integ.error_bound_mw(float(a64.sum()), float(np.sqrt(np.sum(a64 * a64))), d_um)
+    top = ref.max()
+    near = ref > 1e-5 * top  # the map zeroes values below 1e-6 of its maximum
+    assert np.max(np.abs(pm - ref)[near]) <= err
+    assert err < 1e-2 * top  # and the bound is useful

@@ -344,6 +344,17 @@ def _lune_mm2(d, r):  # pragma: no cover - compiled
     return max(math.pi * r * r - lens, 0.0) * 1e-6
 
 
+def lune_area_mm2(shift_um: float, radius_um: float) -> float:
+    """Area (mm^2) of a disc of ``radius_um`` outside the same disc moved by ``shift_um``.
+
+    References
+    ----------
+    .. [1] Weisstein, "Circle-Circle Intersection", MathWorld: the lens of two
+       circles of radius r at distance d has area 2 r^2 acos(d / 2r) - (d / 2) sqrt(4 r^2 - d^2).
+    """
+    return float(_lune_mm2(float(shift_um), float(radius_um)))
+
+
 @nb.njit(parallel=True, cache=True, nogil=True)
 def _squares(table, irr, cx, cy, hx, hy, r, px, py, band, exact, lo, hi):  # pragma: no cover
     for t in nb.prange(cx.size):
@@ -415,6 +426,84 @@ def _cheap_enough(h_um: float, radius_um: float, pitch_um: float, tol: float) ->
     return h_um > radius_um / 2.0 or 2.6 * pitch_um / max(radius_um, 1e-30) < tol / 3.0
 
 
+def _search(p, r, cx, cy, hx, hy, tol, start, max_squares):
+    """Branch and bound from root squares of half-sizes ``hx, hy`` centred at ``cx, cy``.
+
+    Returns ``(largest bound of a closed square, best value, its x, its y, squares
+    evaluated, complete)``.
+    """
+    best, bx, by = start
+    px, py = p.pitch_x_um, p.pitch_y_um
+    closed = 0.0
+    evaluated = 0
+    complete = True
+    pitch = max(px, py)
+    cx = np.ascontiguousarray(cx, dtype=np.float64)
+    cy = np.ascontiguousarray(cy, dtype=np.float64)
+    while cx.size:
+        h = max(hx, hy)
+        exact = not _cheap_enough(h, r, pitch, tol)
+        band = max(int(h / py), 1)
+        lo = np.empty(cx.size)
+        hi = np.empty(cx.size)
+        _squares(p.table, p.irradiance, cx, cy, hx, hy, r, px, py, band, exact, lo, hi)
+        hi += p.allowance(r + math.hypot(hx, hy))
+        evaluated += cx.size
+        k = int(np.argmax(lo))
+        if lo[k] > best:
+            best, bx, by = float(lo[k]), float(cx[k]), float(cy[k])
+        keep = hi > (1.0 + tol) * best
+        if not keep.all():
+            closed = max(closed, float(hi[~keep].max()))
+        if not keep.any():
+            break
+        cx, cy = cx[keep], cy[keep]
+        if evaluated + 4 * cx.size > max_squares:
+            closed = max(closed, float(hi[keep].max()))
+            complete = False
+            break
+        hx, hy = hx / 2.0, hy / 2.0
+        cx = np.concatenate([cx - hx, cx + hx, cx - hx, cx + hx])
+        cy = np.concatenate([cy - hy, cy - hy, cy + hy, cy + hy])
+    return closed, best, bx, by, evaluated, complete
+
+
+def bound_over_cells(
+    prepared: PreparedMap,
+    radius_um: float,
+    rows,
+    cols,
+    *,
+    found_mw: float,
+    x_um: float,
+    y_um: float,
+    tol: float = 0.009,
+    max_squares: int = MAX_SQUARES,
+) -> DiscMaximum:
+    """Bound of the disc power over every centre within the cells of samples ``(rows, cols)``.
+
+    ``found_mw`` is a disc power already found at ``(x_um, y_um)`` (it prunes
+    from the start). The result's ``bound_mw`` covers the given cells only.
+    """
+    p = prepared
+    r = float(radius_um)
+    rr = np.asarray(rows, dtype=np.float64).ravel()
+    cc = np.asarray(cols, dtype=np.float64).ravel()
+    closed, best, bx, by, evaluated, complete = _search(
+        p,
+        r,
+        cc * p.pitch_x_um,
+        rr * p.pitch_y_um,
+        p.pitch_x_um / 2.0,
+        p.pitch_y_um / 2.0,
+        tol,
+        (float(found_mw), float(x_um), float(y_um)),
+        max_squares,
+    )
+    found = float(disc_sums_at(p, r, [bx], [by])[0])
+    return DiscMaximum(max(closed, found), found, bx, by, evaluated, complete)
+
+
 def largest_disc_power(
     prepared: PreparedMap,
     radius_um: float,
@@ -465,34 +554,8 @@ def largest_disc_power(
     gx = -px / 2.0 + (2 * np.arange(nx) + 1) * hx
     gy = -py / 2.0 + (2 * np.arange(ny) + 1) * hy
     cx, cy = (a.ravel() for a in np.meshgrid(gx, gy))
-    closed = 0.0
-    evaluated = 0
-    complete = True
-    pitch = max(px, py)
-    while cx.size:
-        h = max(hx, hy)
-        exact = not _cheap_enough(h, r, pitch, tol)
-        band = max(int(h / py), 1)
-        lo = np.empty(cx.size)
-        hi = np.empty(cx.size)
-        _squares(p.table, p.irradiance, cx, cy, hx, hy, r, px, py, band, exact, lo, hi)
-        hi += p.allowance(r + math.hypot(hx, hy))
-        evaluated += cx.size
-        k = int(np.argmax(lo))
-        if lo[k] > best:
-            best, bx, by = float(lo[k]), float(cx[k]), float(cy[k])
-        keep = hi > (1.0 + tol) * best
-        if not keep.all():
-            closed = max(closed, float(hi[~keep].max()))
-        if not keep.any():
-            break
-        cx, cy = cx[keep], cy[keep]
-        if evaluated + 4 * cx.size > max_squares:
-            closed = max(closed, float(hi[keep].max()))
-            complete = False
-            break
-        hx, hy = hx / 2.0, hy / 2.0
-        cx = np.concatenate([cx - hx, cx + hx, cx - hx, cx + hx])
-        cy = np.concatenate([cy - hy, cy - hy, cy + hy, cy + hy])
+    closed, best, bx, by, evaluated, complete = _search(
+        p, r, cx, cy, hx, hy, tol, (best, bx, by), max_squares
+    )
     found = float(disc_sums_at(p, r, [bx], [by])[0])
     return DiscMaximum(max(closed, found), found, bx, by, evaluated, complete)
