@@ -49,7 +49,7 @@ import numpy as np
 from . import _validate as v
 from .baseline import MASK_PRESETS, AmplitudeMask
 from .errors import ConfigError, StimplanError
-from .exposure import ProtocolCap, Pulse
+from .exposure import ProtocolCap, Pulse, check_wavelength
 from .eye import EYE_PRESETS, eye_preset
 from .holography.ifta import IftaSettings
 from .implant import IMPLANT_PRESETS, Implant, implant_preset
@@ -1382,6 +1382,13 @@ def _assemble(
         except ConfigError as exc:
             report.add_exc(exc, "seed")
     slm, laser, relay = _optics(report, raw, base_dir)
+    if laser is not None:
+        # a sequence is planned with its exposure assessed: refuse, at the file's own
+        # key and line, a wavelength whose limits are not implemented
+        try:
+            check_wavelength(laser.wavelength_nm, "optics.laser.wavelength_nm")
+        except ConfigError as exc:
+            report.add_exc(exc, "optics.laser.wavelength_nm")
     eye = _eye(report, raw)
     system = None
     if None not in (slm, laser, relay, eye):

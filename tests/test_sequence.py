@@ -431,6 +431,17 @@ def test_wavelength_message_names_the_field_the_value_and_the_range():
     assert "optics.laser.wavelength_nm (line 12) = -5: allowed in [400, 1400]" in str(err)
 
 
+@pytest.mark.parametrize(("nm", "why"), [(650, "visible-light"), (1310, "cornea and lens")])
+def test_a_wavelength_without_implemented_limits_is_refused_at_its_key(nm, why):
+    # Source: Directive 2006/25/EC, Annex II, Table 2.2 (visible rows below 700 nm);
+    # Schulmeister and Stuck (2024), abstract: corneal and lens limits bind at
+    # 1200-1400 nm. Neither is implemented, so the file is refused at the key.
+    err = _errors(_mutate(BASE, "wavelength_nm = 880.0", f"wavelength_nm = {nm}"))
+    (e,) = err.errors
+    assert e.field == "optics.laser.wavelength_nm" and e.line == 12
+    assert "[700, 1200] nm" in e.allowed and why in e.detail
+
+
 @pytest.mark.parametrize(
     ("text", "path"),
     [

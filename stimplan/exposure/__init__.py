@@ -36,6 +36,7 @@ from .factors import (
     c_c,
     c_e,
     c_p,
+    check_wavelength,
     grouping_times_s,
     t2_s,
 )
@@ -77,6 +78,7 @@ __all__ = [
     "t2_s",
     "grouping_times_s",
     "c_p",
+    "check_wavelength",
     "thermal_limit_j_per_m2",
     "CornealMPE",
     "corneal_mpe",

@@ -19,9 +19,9 @@ The factors here are those of the 2000 edition where they are the stricter:
 (the 2014 edition's time-dependent alpha_max only ever makes C_E larger), and
 ``C_P = N**-0.25`` with no floor (the 2014 edition's C5 is never smaller).
 
-Supported range: 700-1200 nm and exposures of 1 ns to 3e4 s. Below 700 nm
-photochemical limits also apply, above 1200 nm the cornea and lens become the
-limiting tissues, and below 1 ns the editions disagree by up to 5x; those
+Supported range: 700-1200 nm and exposures of 1 ns to 3e4 s. Below 700 nm the
+visible-light limits apply (photochemical up to 600 nm), above 1200 nm the
+cornea and lens become the limiting tissues, and below 1 ns the editions disagree by up to 5x; those
 regimes are refused (:class:`stimplan.errors.ConfigError`), not approximated.
 
 References
@@ -78,7 +78,8 @@ def check_wavelength(value: Any, field: str = "wavelength_nm") -> float:
     lam = v.number(field, value)
     if lam < WAVELENGTH_MIN_NM or lam > WAVELENGTH_MAX_NM:
         why = (
-            "below 700 nm the photochemical limits also apply and are not implemented"
+            "below 700 nm the visible-light limits (photochemical up to 600 nm, C_A = 1) "
+            "are not implemented"
             if lam < WAVELENGTH_MIN_NM
             else "above 1200 nm the cornea and lens limit the exposure and their limits "
             "are not implemented"
