@@ -189,8 +189,10 @@ def _cmd_check(args: argparse.Namespace) -> int:
 
 
 def _cmd_export(args: argparse.Namespace) -> int:
-    from .export import export_plan
+    from .export import check_export_target, export_plan
 
+    # refuse a target that may not be written before any computing
+    check_export_target(args.output, force=args.force, keep=(args.file,))
     plan = _load_and_plan(args.file)
     out = export_plan(
         plan,

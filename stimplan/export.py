@@ -24,7 +24,8 @@ import hashlib
 import io
 import json
 import math
-from collections.abc import Iterator
+import os
+from collections.abc import Iterable, Iterator
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -34,9 +35,11 @@ import numpy as np
 from . import __version__
 from ._atomic import atomic_folder
 from .cautions import CAUTIONS
-from .errors import ConfigError, ExposureLimitError, InputFileError, IntegrityError
+from .errors import ConfigError, ExportError, ExposureLimitError, InputFileError, IntegrityError
 
 __all__ = [
+    "is_export_folder",
+    "check_export_target",
     "EXPORT_FORMAT",
     "TIMELINE_COLUMNS",
     "export_plan",
@@ -164,6 +167,64 @@ def _write_timeline(folder: Path, plan) -> str:
     return "timeline.csv"
 
 
+def is_export_folder(path: str | Path) -> bool:
+    """True if ``path`` is a folder holding a stimplan export (its manifest names the format)."""
+    manifest = Path(path) / "manifest.json"
+    try:
+        data = json.loads(manifest.read_text())
+    except (OSError, ValueError):
+        return False
+    return isinstance(data, dict) and data.get("format") == EXPORT_FORMAT
+
+
+def check_export_target(
+    output: str | Path, *, force: bool = False, keep: Iterable[str | Path] = ()
+) -> Path:
+    """Refuse an output folder that an export may not create or replace, before any work.
+
+    An existing path is replaced only with ``force``, and only if it is a folder
+    that holds a stimplan export; never a file, a folder of other data, the
+    current folder or one of its parents, or a folder holding a path of
+    ``keep`` (for example the sequence file). The parent must be writable.
+
+    Raises
+    ------
+    ExportError
+        Naming the output, what was found and what is allowed.
+    """
+    dst = Path(output).absolute()
+    allowed = "a new folder, or with --force a folder that holds a stimplan export"
+    if dst.exists() or dst.is_symlink():
+        if not force:
+            raise ExportError("output", str(dst), allowed, "it exists; pass --force to replace it")
+        if not dst.is_dir() or dst.is_symlink():
+            raise ExportError("output", str(dst), allowed, "it is a file, not an export folder")
+        cwd = Path.cwd().resolve()
+        real = dst.resolve()
+        if real == cwd or real in cwd.parents:
+            raise ExportError("output", str(dst), allowed, "it is the current folder or holds it")
+        for k in keep:
+            kp = Path(k).resolve()
+            if kp == real or real in kp.parents:
+                raise ExportError("output", str(dst), allowed, f"it holds {kp}")
+        if not is_export_folder(dst):
+            raise ExportError(
+                "output",
+                str(dst),
+                allowed,
+                "it holds no stimplan export (no manifest.json of this format); "
+                "--force replaces only an earlier export",
+            )
+    parent = dst.parent
+    while not parent.exists() and parent != parent.parent:
+        parent = parent.parent
+    if not parent.is_dir() or not os.access(parent, os.W_OK | os.X_OK):
+        raise ExportError(
+            "output", str(dst), "a location you can write to", f"{parent} is not writable"
+        )
+    return dst
+
+
 def export_plan(
     plan,
     output: str | Path,
@@ -200,10 +261,13 @@ def export_plan(
     ExposureLimitError
         If the plan is above a limit and no acknowledgement is given.
     ExportError
-        If ``output`` exists and ``force`` is false.
+        If ``output`` exists and ``force`` is false, or exists and is not an
+        earlier export (:func:`check_export_target`).
     """
     if stack_format not in STACK_FORMATS:
         raise ConfigError("stack_format", stack_format, "one of 'tiff', 'png'")
+    source = getattr(plan.spec, "source_path", None)
+    check_export_target(output, force=force, keep=() if source is None else (source,))
     ack = None
     if plan.verdict == "above":
         if not acknowledge_reason or not str(acknowledge_reason).strip():

@@ -100,6 +100,51 @@ def test_existing_folder_is_refused_without_force(plan, tmp_path):
     assert load_export(out).verdict == "within"
 
 
+def _snapshot(folder):
+    return sorted(
+        (str(q.relative_to(folder)), q.read_bytes()) for q in folder.rglob("*") if q.is_file()
+    )
+
+
+def test_force_replaces_only_an_earlier_export(plan, seq_file, tmp_path, monkeypatch):
+    # common practice: --force may replace an earlier export, never other data
+    work = tmp_path / "work"
+    (work / "data").mkdir(parents=True)
+    (work / "data" / "trial1.csv").write_text("t,v\n0,1\n")
+    (work / "session.toml").write_text(seq_file.read_text())
+    afile = tmp_path / "afile.txt"
+    afile.write_text("notes")
+    before = _snapshot(tmp_path)
+    for target, why in [(work, "no stimplan export"), (afile, "a file")]:
+        with pytest.raises(ExportError) as err:
+            export_plan(plan, target, force=True)
+        assert why in err.value.detail and err.value.field == "output"
+    earlier = tmp_path / "earlier"
+    export_plan(plan, earlier)
+    monkeypatch.chdir(earlier)
+    with pytest.raises(ExportError, match="current folder"):
+        export_plan(plan, ".", force=True)
+    monkeypatch.chdir(tmp_path)
+    assert _snapshot(tmp_path) == sorted(before + _snapshot_under(earlier, tmp_path))
+    export_plan(plan, earlier, force=True)  # an earlier export is replaced
+    assert load_export(earlier).verdict == "within"
+
+
+def _snapshot_under(folder, root):
+    return [(str(q.relative_to(root)), q.read_bytes()) for q in folder.rglob("*") if q.is_file()]
+
+
+def test_cli_refuses_a_data_folder_before_planning(seq_file, tmp_path, capsys):
+    from stimplan.cli import main
+
+    work = tmp_path / "work"
+    work.mkdir()
+    (work / "keep.txt").write_text("keep")
+    assert main(["export", str(seq_file), "-o", str(work), "--force"]) == 1
+    assert "no stimplan export" in capsys.readouterr().err
+    assert [q.name for q in work.iterdir()] == ["keep.txt"]
+
+
 def test_interrupted_export_leaves_nothing_that_looks_complete(plan, tmp_path):
     # common practice: write into a temporary sibling, rename at the end
     for stage in ("stack", "timeline"):
