@@ -1,0 +1,281 @@
+"""Reading a sequence file: TOML text or a dict to a validated :class:`SequenceSpec`."""
+
+from __future__ import annotations
+
+import os
+import re
+import tomllib
+from collections.abc import Mapping
+from pathlib import Path
+from typing import Any
+
+from .. import _validate as v
+from ..baseline import MASK_PRESETS
+from ..errors import ConfigError
+from ..exposure import check_wavelength
+from ..system import Eye, Illumination, OpticalSystem
+from .keys import (
+    FORMAT,
+    LIMITS_KEYS,
+    MASK_KEYS,
+    MAX_DOTS_PER_LINE,
+    MAX_FILE_BYTES,
+    SEED_MAX,
+    TOP_KEYS,
+)
+from .lines import LineIndex, dotted_line, syntax_error
+from .model import SequenceSpec
+from .report import ErrorReport, SequenceError, build_collecting, rebase_path
+from .sections import (
+    make_limits,
+    make_mask,
+    read_eye,
+    read_hologram,
+    read_implant,
+    read_optics,
+    read_order,
+    read_section,
+    read_steps,
+    read_stimuli,
+)
+from .timeline import (
+    check_counts,
+)
+
+__all__ = ["load_sequence", "parse_sequence", "sequence_from_dict"]
+
+
+def load_sequence(path: str | os.PathLike[str]) -> SequenceSpec:
+    """Read and validate a sequence file.
+
+    Parameters
+    ----------
+    path : str or path-like
+        The TOML file, at most :data:`MAX_FILE_BYTES`, UTF-8. Relative file
+        paths inside it are resolved against its folder.
+
+    Returns
+    -------
+    SequenceSpec
+
+    Raises
+    ------
+    SequenceError
+        If the file cannot be read or holds any error (all are listed).
+    """
+    try:
+        p = Path(path)
+        shown = os.path.abspath(p)
+    except (TypeError, ValueError) as exc:
+        raise SequenceError([ConfigError("file", path, "a file path", str(exc))]) from None
+    try:
+        if not p.is_file():
+            raise FileNotFoundError("no such file")
+        size = p.stat().st_size
+        if size > MAX_FILE_BYTES:
+            raise SequenceError(
+                [ConfigError("file", f"{size} bytes", f"at most {MAX_FILE_BYTES} bytes")], shown
+            )
+        data = p.read_bytes()
+    except OSError as exc:
+        raise SequenceError(
+            [ConfigError("file", str(p), "an existing, readable sequence file", str(exc))], shown
+        ) from None
+    return parse_sequence(data, base_dir=p.parent, source=shown)
+
+
+def parse_sequence(
+    text: str | bytes,
+    *,
+    base_dir: str | os.PathLike[str] | None = None,
+    source: str | None = None,
+) -> SequenceSpec:
+    """Validate the text of a sequence file.
+
+    Parameters
+    ----------
+    text : str or bytes
+        TOML text (bytes are read as UTF-8), at most :data:`MAX_FILE_BYTES`.
+    base_dir : str or path-like, optional
+        Folder against which relative file paths are resolved (default: the
+        current folder).
+    source : str, optional
+        Name of the file, for messages and :attr:`SequenceSpec.source_path`.
+
+    Returns
+    -------
+    SequenceSpec
+
+    Raises
+    ------
+    SequenceError
+        Listing every error found, with key paths and line numbers.
+    """
+    if isinstance(text, (bytes, bytearray)):
+        if len(text) > MAX_FILE_BYTES:
+            raise SequenceError(
+                [ConfigError("file", f"{len(text)} bytes", f"at most {MAX_FILE_BYTES} bytes")],
+                source,
+            )
+        try:
+            text = bytes(text).decode("utf-8")
+        except UnicodeDecodeError as exc:
+            raise SequenceError(
+                [ConfigError("file", None, "UTF-8 text", str(exc))], source
+            ) from None
+    if not isinstance(text, str):
+        raise SequenceError([ConfigError("file", type(text).__name__, "TOML text")], source)
+    size = len(text.encode("utf-8", "surrogatepass"))
+    if size > MAX_FILE_BYTES:
+        raise SequenceError(
+            [ConfigError("file", f"{size} bytes", f"at most {MAX_FILE_BYTES} bytes")], source
+        )
+    text = text.removeprefix("\ufeff")
+    index = LineIndex(text)
+    dotted = dotted_line(text)
+    if dotted is not None:
+        no, n = dotted
+        raise SequenceError(
+            [
+                ConfigError(
+                    index.table_at(no) or "sequence",
+                    f"{n} '.' on one line",
+                    f"at most {MAX_DOTS_PER_LINE} outside strings",
+                    "keys nested that deep (or that many decimal numbers on one line) are refused",
+                    line=no,
+                )
+            ],
+            source,
+        )
+    try:
+        raw = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise SequenceError([syntax_error(exc, text, index)], source) from None
+    except Exception as exc:  # e.g. nesting too deep for the reader
+        raise SequenceError(
+            [ConfigError("sequence", None, "TOML text", f"{type(exc).__name__}: {exc}")], source
+        ) from None
+    return _from_raw(raw, index, base_dir, source)
+
+
+def sequence_from_dict(
+    data: Mapping[str, Any],
+    *,
+    base_dir: str | os.PathLike[str] | None = None,
+    source: str | None = None,
+) -> SequenceSpec:
+    """Validate a sequence given as nested dictionaries (the layout of the file).
+
+    The inverse of :meth:`SequenceSpec.to_dict`. No line numbers are known.
+
+    Raises
+    ------
+    SequenceError
+    """
+    if not isinstance(data, Mapping):
+        raise SequenceError([ConfigError("sequence", type(data).__name__, "a table")], source)
+    return _from_raw(dict(data), None, base_dir, source)
+
+
+def _from_raw(
+    raw: dict[str, Any],
+    index: LineIndex | None,
+    base_dir: str | os.PathLike[str] | None,
+    source: str | None,
+) -> SequenceSpec:
+    report = ErrorReport(index)
+    try:
+        base = Path(base_dir) if base_dir is not None else None
+        spec = _assemble(report, raw, base, source)
+    except SequenceError:
+        raise
+    except Exception as exc:  # a last guard: nothing but a SequenceError leaves
+        report.add_unexpected("sequence", exc)
+        spec = None
+    if report.errors or spec is None:
+        raise SequenceError(report.errors, source)
+    return spec
+
+
+def _assemble(
+    report: ErrorReport, raw: dict[str, Any], base_dir: Path | None, source: str | None
+) -> SequenceSpec | None:
+    report.unknown_keys(raw, "", TOP_KEYS)
+    fmt = raw.get("format")
+    if fmt != FORMAT:
+        report.add("format", fmt, repr(FORMAT), "missing" if fmt is None else "unknown format")
+    title = raw.get("title", "")
+    if not isinstance(title, str):
+        report.add("title", title, "a string")
+    seed = 0
+    if "seed" in raw:
+        try:
+            seed = v.integer("seed", raw["seed"], lo=0, hi=SEED_MAX)
+        except ConfigError as exc:
+            report.add_exc(exc, "seed")
+    slm, laser, relay = read_optics(report, raw, base_dir)
+    if laser is not None:
+        # a sequence is planned with its exposure assessed: refuse, at the file's own
+        # key and line, a wavelength whose limits are not implemented
+        try:
+            check_wavelength(laser.wavelength_nm, "optics.laser.wavelength_nm")
+        except ConfigError as exc:
+            report.add_exc(exc, "optics.laser.wavelength_nm")
+    eye = read_eye(report, raw)
+    system = None
+    if None not in (slm, laser, relay, eye):
+        remaps = {"slm": "optics.slm", "illumination": "optics.laser", "relay": "optics.relay"}
+
+        def where(f: str) -> str:
+            head = re.split(r"[.\[]", f, maxsplit=1)[0]
+            return rebase_path(f, head, remaps[head]) if head in remaps else f
+
+        system = build_collecting(
+            report,
+            OpticalSystem,
+            dict(slm=slm, illumination=laser, relay=relay, eye=eye),
+            "optics",
+            where,
+            retry=False,
+        )
+    implant, has_implant = read_implant(report, raw)
+    holo = read_hologram(report, raw, seed, has_implant)
+    mask = read_section(report, raw, "mask", MASK_KEYS, make_mask, "mask", keep=("kind",))
+    protocol = None
+    if "limits" in raw:
+        protocol = read_section(report, raw, "limits", LIMITS_KEYS, make_limits, "protocol")
+    shuffle, repeats = read_order(report, raw)
+    # With a broken [eye] or [implant] (already reported), stand-ins let the
+    # stimuli's own values be checked; the specification is not built anyway.
+    if implant is not None:
+        pitch = implant.pitch_um
+    else:
+        pitch = 1.0 if has_implant else None
+    stimuli = read_stimuli(report, raw, eye if eye is not None else Eye(), pitch, base_dir)
+    defined = raw.get("stimuli")
+    failed = {k for k in defined if k not in stimuli} if isinstance(defined, dict) else set()
+    default_power = laser.power_mw if laser is not None else Illumination().power_mw
+    steps = read_steps(report, raw, stimuli, failed, has_implant, default_power)
+    if steps and not report.errors:
+        check_counts(report, steps, repeats)
+    if report.errors:
+        return None
+    return SequenceSpec(
+        title=title,
+        seed=seed,
+        system=system,
+        implant=implant,
+        stimuli=stimuli,
+        steps=tuple(steps),
+        ifta=holo["ifta"],
+        implant_aware=bool(holo["implant_aware"]) and implant is not None,
+        oversample=holo["oversample"],
+        offset_um=holo["offset_um"],
+        on_threshold=holo["on_threshold"],
+        mask=mask if mask is not None else MASK_PRESETS["lcd"],
+        protocol=protocol,
+        shuffle=shuffle,
+        repeats=repeats,
+        source_path=source,
+        raw=raw,
+    )
