@@ -35,7 +35,7 @@ import math
 import re
 from typing import Any, NamedTuple
 
-from . import _validate as v
+from . import validate
 from .errors import ConfigError
 from .system import Eye
 
@@ -106,13 +106,13 @@ def logmar_from_mar(mar_arcmin: float) -> float:
     ----------
     .. [1] Bailey & Lovie, *Am. J. Optom. Physiol. Opt.* 53, 740 (1976).
     """
-    mar = v.number("mar_arcmin", mar_arcmin, lo=0, lo_open=True)
+    mar = validate.number("mar_arcmin", mar_arcmin, lo=0, lo_open=True)
     return math.log10(mar)
 
 
 def mar_from_logmar(logmar: float) -> float:
     """MAR in arcmin of a logMAR value, ``10**logMAR``."""
-    lm = v.number("logmar", logmar, lo=-2.0, hi=4.0)
+    lm = validate.number("logmar", logmar, lo=-2.0, hi=4.0)
     return 10.0**lm
 
 
@@ -143,8 +143,8 @@ def parse_snellen(snellen: Any, field: str = "snellen") -> tuple[float, float]:
         num, den = snellen
     else:
         raise ConfigError(field, snellen, "a Snellen fraction such as '20/40' or (20, 40)")
-    num = v.number(f"{field}.numerator", num, lo=0, lo_open=True)
-    den = v.number(f"{field}.denominator", den, lo=0, lo_open=True)
+    num = validate.number(f"{field}.numerator", num, lo=0, lo_open=True)
+    den = validate.number(f"{field}.denominator", den, lo=0, lo_open=True)
     return num, den
 
 
@@ -161,8 +161,8 @@ def mar_from_snellen(snellen: Any) -> float:
 
 def snellen_from_mar(mar_arcmin: float, numerator: float = 20.0) -> float:
     """Snellen denominator for a MAR: ``numerator × MAR`` (20/x or 6/x)."""
-    mar = v.number("mar_arcmin", mar_arcmin, lo=0, lo_open=True)
-    num = v.number("snellen.numerator", numerator, lo=0, lo_open=True)
+    mar = validate.number("mar_arcmin", mar_arcmin, lo=0, lo_open=True)
+    num = validate.number("snellen.numerator", numerator, lo=0, lo_open=True)
     return num * mar
 
 
@@ -184,13 +184,13 @@ def snellen_from_logmar(logmar: float, numerator: float = 20.0) -> float:
 
 def decimal_from_mar(mar_arcmin: float) -> float:
     """Decimal acuity, ``1 / MAR``."""
-    mar = v.number("mar_arcmin", mar_arcmin, lo=0, lo_open=True)
+    mar = validate.number("mar_arcmin", mar_arcmin, lo=0, lo_open=True)
     return 1.0 / mar
 
 
 def mar_from_decimal(decimal: float) -> float:
     """MAR in arcmin of a decimal acuity, ``1 / decimal``."""
-    d = v.number("decimal", decimal, lo=0, lo_open=True)
+    d = validate.number("decimal", decimal, lo=0, lo_open=True)
     return 1.0 / d
 
 
@@ -213,18 +213,18 @@ def um_per_deg_of(eye: Eye | float, field: str = "eye") -> float:
         return eye.um_per_deg
     if eye is None:
         raise ConfigError(field, None, "an Eye or a number of µm per degree > 0")
-    return v.number(f"{field}.um_per_deg", eye, lo=0, lo_open=True)
+    return validate.number(f"{field}.um_per_deg", eye, lo=0, lo_open=True)
 
 
 def arcmin_to_um(arcmin: float, eye: Eye | float) -> float:
     """Retinal length in µm of a visual angle in arcmin."""
-    a = v.number("arcmin", arcmin)
+    a = validate.number("arcmin", arcmin)
     return a / ARCMIN_PER_DEG * um_per_deg_of(eye)
 
 
 def um_to_arcmin(um: float, eye: Eye | float) -> float:
     """Visual angle in arcmin of a retinal length in µm."""
-    x = v.number("um", um)
+    x = validate.number("um", um)
     return x / um_per_deg_of(eye) * ARCMIN_PER_DEG
 
 
@@ -233,13 +233,13 @@ def um_to_arcmin(um: float, eye: Eye | float) -> float:
 
 def period_um_from_cpd(cycles_per_deg: float, eye: Eye | float) -> float:
     """Retinal period in µm of a grating of ``cycles_per_deg``."""
-    c = v.number("cycles_per_deg", cycles_per_deg, lo=0, lo_open=True)
+    c = validate.number("cycles_per_deg", cycles_per_deg, lo=0, lo_open=True)
     return um_per_deg_of(eye) / c
 
 
 def cpd_from_period_um(period_um: float, eye: Eye | float) -> float:
     """Cycles per degree of a grating with a retinal period in µm."""
-    p = v.number("period_um", period_um, lo=0, lo_open=True)
+    p = validate.number("period_um", period_um, lo=0, lo_open=True)
     return um_per_deg_of(eye) / p
 
 
@@ -250,21 +250,21 @@ def bar_width_um_from_cpd(cycles_per_deg: float, eye: Eye | float) -> float:
 
 def cpd_from_bar_width_um(bar_width_um: float, eye: Eye | float) -> float:
     """Cycles per degree of a grating whose bar width (half period) is given in µm."""
-    b = v.number("bar_width_um", bar_width_um, lo=0, lo_open=True)
+    b = validate.number("bar_width_um", bar_width_um, lo=0, lo_open=True)
     return cpd_from_period_um(2.0 * b, eye)
 
 
 def bar_width_px_from_um(bar_width_um: float, pitch_um: float) -> float:
     """Bar width in implant pixels (pitches) of a bar width in µm."""
-    b = v.number("bar_width_um", bar_width_um, lo=0, lo_open=True)
-    p = v.number("pitch_um", pitch_um, lo=0, lo_open=True)
+    b = validate.number("bar_width_um", bar_width_um, lo=0, lo_open=True)
+    p = validate.number("pitch_um", pitch_um, lo=0, lo_open=True)
     return b / p
 
 
 def bar_width_um_from_px(bar_width_px: float, pitch_um: float) -> float:
     """Bar width in µm of a bar width given in implant pixels (pitches)."""
-    b = v.number("bar_width_px", bar_width_px, lo=0, lo_open=True)
-    p = v.number("pitch_um", pitch_um, lo=0, lo_open=True)
+    b = validate.number("bar_width_px", bar_width_px, lo=0, lo_open=True)
+    p = validate.number("pitch_um", pitch_um, lo=0, lo_open=True)
     return b * p
 
 
@@ -285,7 +285,7 @@ def logmar_from_cpd(cycles_per_deg: float) -> float:
     (20/20). This is the usual equivalence; grating and letter acuities of a
     given observer need not agree.
     """
-    c = v.number("cycles_per_deg", cycles_per_deg, lo=0, lo_open=True)
+    c = validate.number("cycles_per_deg", cycles_per_deg, lo=0, lo_open=True)
     return math.log10(GRATING_CPD_AT_MAR_1 / c)
 
 
@@ -316,7 +316,7 @@ def nyquist_acuity(pitch_um: float, eye: Eye | float) -> GratingAcuity:
     .. [1] Lorach et al., *Nat. Med.* 21, 476 (2015).
     .. [2] Ho et al., *J. Neural Eng.* 16, 066027 (2019).
     """
-    p = v.number("pitch_um", pitch_um, lo=0, lo_open=True)
+    p = validate.number("pitch_um", pitch_um, lo=0, lo_open=True)
     cpd = cpd_from_bar_width_um(p, eye)
     return GratingAcuity(cycles_per_deg=cpd, logmar=logmar_from_cpd(cpd), bar_width_um=p)
 

@@ -28,7 +28,7 @@ from dataclasses import dataclass
 import numba as nb
 import numpy as np
 
-from . import _validate as v
+from . import validate
 from .errors import ConfigError
 from .grid import RetinalGrid
 
@@ -60,19 +60,23 @@ class AmplitudeMask:
     field_height_um: float | None = None
 
     def __post_init__(self) -> None:
-        v.choice("mask.kind", self.kind, ("lcd", "dmd"))
+        validate.choice("mask.kind", self.kind, ("lcd", "dmd"))
         object.__setattr__(
             self,
             "efficiency",
-            v.number("mask.efficiency", self.efficiency, lo=0, hi=1, lo_open=True),
+            validate.number("mask.efficiency", self.efficiency, lo=0, hi=1, lo_open=True),
         )
         object.__setattr__(
-            self, "contrast_ratio", v.number("mask.contrast_ratio", self.contrast_ratio, lo=1)
+            self,
+            "contrast_ratio",
+            validate.number("mask.contrast_ratio", self.contrast_ratio, lo=1),
         )
         for name in ("field_width_um", "field_height_um"):
             val = getattr(self, name)
             if val is not None:
-                object.__setattr__(self, name, v.number(f"mask.{name}", val, lo=0, lo_open=True))
+                object.__setattr__(
+                    self, name, validate.number(f"mask.{name}", val, lo=0, lo_open=True)
+                )
 
 
 #: Typical panels. LCD: 7 % total transmission (den Boer 2005, §6.1: 5-10 %).
@@ -108,7 +112,7 @@ class MaskPrediction:
         return self.irradiance_mw_per_mm2 * np.float32(self.grid.sample_area_mm2)
 
     def scaled_to(self, power_mw: float) -> MaskPrediction:
-        p = v.number("power_mw", power_mw, lo=0, lo_open=True)
+        p = validate.number("power_mw", power_mw, lo=0, lo_open=True)
         k = np.float32(p / self.power_mw)
         return MaskPrediction(self.irradiance_mw_per_mm2 * k, self.grid, p, self.field_area_mm2)
 
@@ -160,9 +164,9 @@ def project_mask(
     ----------
     .. [1] den Boer (2005), §6.1.
     """
-    t = v.finite_array("stimulus", intensity, shape=grid.shape, lo=0.0, hi=1.0)
-    p = v.number("power_mw", power_mw, lo=0, lo_open=True)
-    tau = v.number("eye.transmission", eye_transmission, lo=0, hi=1, lo_open=True)
+    t = validate.finite_array("stimulus", intensity, shape=grid.shape, lo=0.0, hi=1.0)
+    p = validate.number("power_mw", power_mw, lo=0, lo_open=True)
+    tau = validate.number("eye.transmission", eye_transmission, lo=0, hi=1, lo_open=True)
     w = mask.field_width_um or grid.width_um
     h = mask.field_height_um or grid.height_um
     if w > grid.width_um * (1 + 1e-9) or h > grid.height_um * (1 + 1e-9):  # larger than the grid
@@ -171,8 +175,8 @@ def project_mask(
             (w, h),
             f"at most the grid ({grid.width_um:.0f} × {grid.height_um:.0f} µm)",
         )
-    cx = v.number("mask.field_center_um[0]", field_center_um[0])
-    cy = v.number("mask.field_center_um[1]", field_center_um[1])
+    cx = validate.number("mask.field_center_um[0]", field_center_um[0])
+    cy = validate.number("mask.field_center_um[1]", field_center_um[1])
     # the field is a rectangle: one row factor and one column factor
     in_x = (np.abs(grid.x_um - cx) <= w / 2).astype(np.float32)
     in_y = (np.abs(grid.y_um - cy) <= h / 2).astype(np.float32)
@@ -188,7 +192,7 @@ def project_mask(
     else:
         irr = t * (np.float32(1.0) - leak)  # shown = t + (1 - t) leak, a new float32 array
         irr += leak
-        illum = v.finite_array("illumination", illumination, shape=grid.shape, lo=0.0)
+        illum = validate.finite_array("illumination", illumination, shape=grid.shape, lo=0.0)
         illum = illum * in_y[:, np.newaxis] * in_x[np.newaxis, :]
         total = float(illum.sum(dtype=np.float64))
         if total <= 0:

@@ -60,10 +60,10 @@ def run_demo(output: str | Path, *, force: bool = False, quick: bool = False) ->
     Prints the summary table (with the cautions). The output folder is
     written atomically and never replaced without ``force``.
     """
-    from .cli import print_table
     from .export import export_plan
     from .planner import plan_sequence
     from .report import write_report
+    from .summary import print_table
 
     spec = demo_spec(quick)
     plan = plan_sequence(spec, progress=True)

@@ -16,7 +16,7 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.sparse as sp
 
-from . import _validate as v
+from . import validate
 
 __all__ = ["RetinalGrid", "interval_overlap"]
 
@@ -63,15 +63,19 @@ class RetinalGrid:
 
     def __post_init__(self) -> None:
         if len(self.shape) != 2:
-            raise v.ConfigError("grid.shape", self.shape, "(rows, cols)")
-        rows = v.integer("grid.shape[0]", self.shape[0], lo=1)
-        cols = v.integer("grid.shape[1]", self.shape[1], lo=1)
+            raise validate.ConfigError("grid.shape", self.shape, "(rows, cols)")
+        rows = validate.integer("grid.shape[0]", self.shape[0], lo=1)
+        cols = validate.integer("grid.shape[1]", self.shape[1], lo=1)
         object.__setattr__(self, "shape", (rows, cols))
         object.__setattr__(
-            self, "pitch_x_um", v.number("grid.pitch_x_um", self.pitch_x_um, lo=0, lo_open=True)
+            self,
+            "pitch_x_um",
+            validate.number("grid.pitch_x_um", self.pitch_x_um, lo=0, lo_open=True),
         )
         object.__setattr__(
-            self, "pitch_y_um", v.number("grid.pitch_y_um", self.pitch_y_um, lo=0, lo_open=True)
+            self,
+            "pitch_y_um",
+            validate.number("grid.pitch_y_um", self.pitch_y_um, lo=0, lo_open=True),
         )
 
     @property
@@ -150,7 +154,7 @@ class RetinalGrid:
 
     def refined(self, factor: int) -> RetinalGrid:
         """The concentric grid with ``factor`` times more samples per axis."""
-        factor = v.integer("oversample", factor, lo=1)
+        factor = validate.integer("oversample", factor, lo=1)
         return RetinalGrid(
             (self.rows * factor, self.cols * factor),
             self.pitch_x_um / factor,

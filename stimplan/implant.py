@@ -52,7 +52,7 @@ import numba as nb
 import numpy as np
 import scipy.sparse as sp
 
-from . import _validate as v
+from . import validate
 from .acuity import GratingAcuity, nyquist_acuity
 from .errors import ConfigError
 from .grid import RetinalGrid
@@ -89,7 +89,7 @@ _CHUNK_ELEMENTS = 2_000_000
 
 def centred_hexagonal_number(rings: int) -> int:
     """Number of pixels in a centred hexagonal patch with ``rings`` rings, ``3k(k+1)+1``."""
-    k = v.integer("rings", rings, lo=0)
+    k = validate.integer("rings", rings, lo=0)
     return 3 * k * (k + 1) + 1
 
 
@@ -114,7 +114,7 @@ def silicon_responsivity_limit_a_per_w(wavelength_nm: float) -> float:
     .. [1] Photon energy ``E = h c / λ``, ``h c / e = 1.23984 eV µm``
        (CODATA 2018 values of h, c and e).
     """
-    lam = v.number("wavelength_nm", wavelength_nm, lo=200.0, hi=1100.0, lo_open=True)
+    lam = validate.number("wavelength_nm", wavelength_nm, lo=200.0, hi=1100.0, lo_open=True)
     from scipy.constants import c, e, h
 
     return lam * 1e-9 * e / (h * c)
@@ -304,7 +304,7 @@ class ImplantRaster:
 
     def pixel_samples(self, index: int) -> tuple[np.ndarray, np.ndarray]:
         """``(flat sample indices, coverage fractions)`` of pixel ``index``."""
-        i = v.integer("pixel", index, lo=0, hi=self.n_pixels - 1)
+        i = validate.integer("pixel", index, lo=0, hi=self.n_pixels - 1)
         a, b = self.matrix.indptr[i], self.matrix.indptr[i + 1]
         return self.matrix.indices[a:b], self.matrix.data[a:b]
 
@@ -330,7 +330,7 @@ class ImplantRaster:
         A sample gets the number of the pixel that covers most of it, if that
         pixel covers at least ``threshold`` of it.
         """
-        thr = v.number("threshold", threshold, lo=0, hi=1, lo_open=True)
+        thr = validate.number("threshold", threshold, lo=0, hi=1, lo_open=True)
         m = self.matrix.tocoo()
         keep = m.data >= thr
         rows, cols, data = m.row[keep], m.col[keep], m.data[keep]
@@ -472,23 +472,27 @@ class Implant:
 
     def __post_init__(self) -> None:
         f = object.__setattr__
-        pitch = v.number("implant.pitch_um", self.pitch_um, lo=0, lo_open=True)
+        pitch = validate.number("implant.pitch_um", self.pitch_um, lo=0, lo_open=True)
         f(self, "pitch_um", pitch)
-        f(self, "layout", v.choice("implant.layout", self.layout, LAYOUTS))
-        f(self, "outline", v.choice("implant.outline", self.outline, OUTLINES))
+        f(self, "layout", validate.choice("implant.layout", self.layout, LAYOUTS))
+        f(self, "outline", validate.choice("implant.outline", self.outline, OUTLINES))
         f(
             self,
             "pixel_inclusion",
-            v.choice("implant.pixel_inclusion", self.pixel_inclusion, INCLUSIONS),
+            validate.choice("implant.pixel_inclusion", self.pixel_inclusion, INCLUSIONS),
         )
-        f(self, "active_shape", v.choice("implant.active_shape", self.active_shape, ACTIVE_SHAPES))
+        f(
+            self,
+            "active_shape",
+            validate.choice("implant.active_shape", self.active_shape, ACTIVE_SHAPES),
+        )
         f(
             self,
             "trench_um",
-            v.number("implant.trench_um", self.trench_um, lo=0.0, hi=pitch, hi_open=True),
+            validate.number("implant.trench_um", self.trench_um, lo=0.0, hi=pitch, hi_open=True),
         )
         for name in ("center_x_um", "center_y_um", "rotation_deg"):
-            f(self, name, v.number(f"implant.{name}", getattr(self, name)))
+            f(self, name, validate.number(f"implant.{name}", getattr(self, name)))
         if not isinstance(self.name, str):
             raise ConfigError("implant.name", self.name, "a string")
         self._check_size()
@@ -544,12 +548,12 @@ class Implant:
             )
         for k in ("diameter_um", "width_um", "height_um"):
             if k in given:
-                f(self, k, v.number(f"implant.{k}", given[k], lo=0, lo_open=True))
+                f(self, k, validate.number(f"implant.{k}", given[k], lo=0, lo_open=True))
         for k in ("rows", "cols"):
             if k in given:
-                f(self, k, v.integer(f"implant.{k}", given[k], lo=1, hi=MAX_IMPLANT_PIXELS))
+                f(self, k, validate.integer(f"implant.{k}", given[k], lo=1, hi=MAX_IMPLANT_PIXELS))
         if "rings" in given:
-            f(self, "rings", v.integer("implant.rings", given["rings"], lo=0, hi=250))
+            f(self, "rings", validate.integer("implant.rings", given["rings"], lo=0, hi=250))
             if self.layout != "hex":
                 raise ConfigError("implant.rings", self.rings, "only with layout 'hex'")
         if self.outline == "square" and self.rows is not None and self.rows != self.cols:
@@ -583,11 +587,11 @@ class Implant:
                 "in (0, 1], or give active_diameter_um instead (exactly one of the two)",
             )
         if frac is not None:
-            frac = v.number("implant.active_fraction", frac, lo=0, hi=1, lo_open=True)
+            frac = validate.number("implant.active_fraction", frac, lo=0, hi=1, lo_open=True)
             f(self, "active_fraction", frac)
             field, value = "implant.active_fraction", frac
         else:
-            diam = v.number("implant.active_diameter_um", diam, lo=0, lo_open=True)
+            diam = validate.number("implant.active_diameter_um", diam, lo=0, lo_open=True)
             f(self, "active_diameter_um", diam)
             field, value = "implant.active_diameter_um", diam
         # does the photodiode fit inside the cell minus the trench?
@@ -780,9 +784,9 @@ class Implant:
         Circles are drawn as regular polygons of ``circle_vertices`` corners
         (for display; rasterising uses the exact disc).
         """
-        region = v.choice("region", region, REGIONS)
+        region = validate.choice("region", region, REGIONS)
         if region == "active" and self.active_shape == "circle":
-            nv = v.integer("circle_vertices", circle_vertices, lo=3, hi=1024)
+            nv = validate.integer("circle_vertices", circle_vertices, lo=3, hi=1024)
             verts = _regular_polygon(nv, self.active_size_um / 2.0, 0.0)
         else:
             verts = _rotate(self._polygon_local(region), self.rotation_deg)
@@ -865,8 +869,8 @@ class Implant:
         """
         if not isinstance(grid, RetinalGrid):
             raise ConfigError("grid", grid, "a RetinalGrid")
-        region = v.choice("region", region, REGIONS)
-        if v.boolean("check_fit", check_fit):
+        region = validate.choice("region", region, REGIONS)
+        if validate.boolean("check_fit", check_fit):
             self.check_fits(grid)
         return _rasterize_cached(self, grid, region)
 
@@ -901,11 +905,13 @@ class Implant:
             raise ConfigError("grid", grid, "a RetinalGrid")
         raw = np.asarray(irradiance_mw_per_mm2)
         keep = np.float64 if raw.dtype == np.float64 else np.float32  # no precision lost
-        irr = v.finite_array("irradiance_mw_per_mm2", raw, shape=grid.shape, lo=0.0, dtype=keep)
+        irr = validate.finite_array(
+            "irradiance_mw_per_mm2", raw, shape=grid.shape, lo=0.0, dtype=keep
+        )
         if responsivity_a_per_w is None:
             resp = silicon_responsivity_limit_a_per_w(wavelength_nm)
         else:
-            resp = v.number(
+            resp = validate.number(
                 "responsivity_a_per_w", responsivity_a_per_w, lo=0, hi=2.0, lo_open=True
             )
         raster = self.rasterize(grid, "active")

@@ -24,7 +24,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import _validate as v
+from . import validate
 from .errors import ConfigError
 from .grid import RetinalGrid
 from .target import Target
@@ -73,8 +73,8 @@ def pixel_states(
     .. [1] H. Lorach et al., *Nat. Med.* 21, 476 (2015) (pixels as the sampling unit of prosthetic
        vision).
     """
-    thr = v.number("implant_target.threshold", threshold, lo=0, hi=1, lo_open=True)
-    t = v.finite_array("stimulus", intensity, shape=grid.shape, lo=0.0, hi=1.0)
+    thr = validate.number("implant_target.threshold", threshold, lo=0, hi=1, lo_open=True)
+    t = validate.finite_array("stimulus", intensity, shape=grid.shape, lo=0.0, hi=1.0)
     cells = implant.rasterize(grid, "cell").matrix
     area = np.asarray(cells.sum(axis=1)).ravel()
     level = (cells @ t.reshape(-1).astype(np.float64)) / np.where(area > 0, area, 1.0)

@@ -15,7 +15,7 @@ from dataclasses import dataclass
 import numba as nb
 import numpy as np
 
-from . import _validate as v
+from . import validate
 from .errors import ConfigError
 
 __all__ = [
@@ -46,7 +46,7 @@ def efficiency(sample_power_mw: np.ndarray, region: np.ndarray, input_power_mw: 
     ----------
     .. [1] Di Leonardo et al. (2007), eq. (6).
     """
-    p = v.number("input_power_mw", input_power_mw, lo=0, lo_open=True)
+    p = validate.number("input_power_mw", input_power_mw, lo=0, lo_open=True)
     _same_shape(sample_power_mw, region)
     return float(np.sum(sample_power_mw * region, dtype=np.float64) / p)
 
@@ -171,7 +171,7 @@ def spot_powers(
     .. [1] R. Di Leonardo, F. Ianni and G. Ruocco, *Opt. Express* 15, 1913 (2007) (spot intensities
        of trap arrays).
     """
-    r = v.number("radius_um", radius_um, lo=0, lo_open=True)
+    r = validate.number("radius_um", radius_um, lo=0, lo_open=True)
     c = np.asarray(centres_um, dtype=np.float64).reshape(-1, 2)
     x, y = grid.coords_um()
     out = np.empty(len(c))
@@ -256,7 +256,7 @@ def pattern_metrics(prediction, target, lit: np.ndarray | None = None) -> Patter
     coarse = resample_coverage(irr, grid, target.grid)
     lit_d = target.lit
     near = _dilate_l1(np.ascontiguousarray(lit_d, dtype=np.bool_), 2)
-    p = v.number("prediction.power_mw", prediction.power_mw, lo=0, lo_open=True)
+    p = validate.number("prediction.power_mw", prediction.power_mw, lo=0, lo_open=True)
     return PatternMetrics(
         efficiency=s_w * grid.sample_area_mm2 / p,
         uniformity=uniformity(coarse[lit_d]),

@@ -28,7 +28,7 @@ from typing import Literal
 
 import numpy as np
 
-from . import _validate as v
+from . import validate
 from .errors import ConfigError
 from .grid import RetinalGrid
 from .io_images import read_scalar_image
@@ -97,21 +97,35 @@ class SLM:
 
     def __post_init__(self) -> None:
         f = object.__setattr__
-        f(self, "pixels_x", v.integer("slm.pixels_x", self.pixels_x, lo=2, hi=MAX_SLM_PIXELS))
-        f(self, "pixels_y", v.integer("slm.pixels_y", self.pixels_y, lo=2, hi=MAX_SLM_PIXELS))
-        f(self, "pitch_um", v.number("slm.pitch_um", self.pitch_um, lo=0, lo_open=True))
+        f(
+            self,
+            "pixels_x",
+            validate.integer("slm.pixels_x", self.pixels_x, lo=2, hi=MAX_SLM_PIXELS),
+        )
+        f(
+            self,
+            "pixels_y",
+            validate.integer("slm.pixels_y", self.pixels_y, lo=2, hi=MAX_SLM_PIXELS),
+        )
+        f(self, "pitch_um", validate.number("slm.pitch_um", self.pitch_um, lo=0, lo_open=True))
         f(
             self,
             "fill_factor",
-            v.number("slm.fill_factor", self.fill_factor, lo=0, hi=1, lo_open=True),
+            validate.number("slm.fill_factor", self.fill_factor, lo=0, hi=1, lo_open=True),
         )
-        f(self, "phase_levels", v.integer("slm.phase_levels", self.phase_levels, lo=2, hi=65536))
+        f(
+            self,
+            "phase_levels",
+            validate.integer("slm.phase_levels", self.phase_levels, lo=2, hi=65536),
+        )
         if self.grey_2pi is not None:
-            f(self, "grey_2pi", v.integer("slm.grey_2pi", self.grey_2pi, lo=1, hi=65535))
+            f(self, "grey_2pi", validate.integer("slm.grey_2pi", self.grey_2pi, lo=1, hi=65535))
         f(
             self,
             "zero_order_fraction",
-            v.number("slm.zero_order_fraction", self.zero_order_fraction, lo=0, hi=1, hi_open=True),
+            validate.number(
+                "slm.zero_order_fraction", self.zero_order_fraction, lo=0, hi=1, hi_open=True
+            ),
         )
         if self.lut_file is not None and not isinstance(self.lut_file, (str, Path)):
             raise ConfigError("slm.lut_file", self.lut_file, "a file path")
@@ -119,7 +133,7 @@ class SLM:
     @classmethod
     def from_bit_depth(cls, bit_depth: int, **kwargs) -> SLM:
         """An SLM with ``2**bit_depth`` linear phase levels."""
-        bits = v.integer("slm.bit_depth", bit_depth, lo=1, hi=16)
+        bits = validate.integer("slm.bit_depth", bit_depth, lo=1, hi=16)
         return cls(phase_levels=2**bits, **kwargs)
 
     @property
@@ -188,15 +202,19 @@ class Illumination:
         f(
             self,
             "wavelength_nm",
-            v.number("illumination.wavelength_nm", self.wavelength_nm, lo=400, hi=1400),
+            validate.number("illumination.wavelength_nm", self.wavelength_nm, lo=400, hi=1400),
         )
         f(
             self,
             "power_mw",
-            v.number("illumination.power_mw", self.power_mw, lo=0, lo_open=True),
+            validate.number("illumination.power_mw", self.power_mw, lo=0, lo_open=True),
         )
-        v.choice("illumination.profile", self.profile, ("flat", "gaussian", "file"))
-        f(self, "waist_mm", v.number("illumination.waist_mm", self.waist_mm, lo=0, lo_open=True))
+        validate.choice("illumination.profile", self.profile, ("flat", "gaussian", "file"))
+        f(
+            self,
+            "waist_mm",
+            validate.number("illumination.waist_mm", self.waist_mm, lo=0, lo_open=True),
+        )
         if self.profile == "file" and not self.amplitude_file:
             raise ConfigError(
                 "illumination.amplitude_file", None, "a file path when profile = 'file'"
@@ -280,10 +298,10 @@ class Relay:
         object.__setattr__(
             self,
             "magnification",
-            v.number("relay.magnification", self.magnification, lo=0, lo_open=True),
+            validate.number("relay.magnification", self.magnification, lo=0, lo_open=True),
         )
         if self.fresnel_focal_mm is not None:
-            fl = v.number("relay.fresnel_focal_mm", self.fresnel_focal_mm)
+            fl = validate.number("relay.fresnel_focal_mm", self.fresnel_focal_mm)
             if fl == 0:
                 raise ConfigError("relay.fresnel_focal_mm", fl, "a non-zero focal length")
             object.__setattr__(self, "fresnel_focal_mm", fl)
@@ -320,22 +338,26 @@ class Eye:
 
     def __post_init__(self) -> None:
         f = object.__setattr__
-        f(self, "um_per_deg", v.number("eye.um_per_deg", self.um_per_deg, lo=0, lo_open=True))
+        f(
+            self,
+            "um_per_deg",
+            validate.number("eye.um_per_deg", self.um_per_deg, lo=0, lo_open=True),
+        )
         f(
             self,
             "pupil_diameter_mm",
-            v.number("eye.pupil_diameter_mm", self.pupil_diameter_mm, lo=0, lo_open=True),
+            validate.number("eye.pupil_diameter_mm", self.pupil_diameter_mm, lo=0, lo_open=True),
         )
         f(
             self,
             "transmission",
-            v.number("eye.transmission", self.transmission, lo=0, hi=1, lo_open=True),
+            validate.number("eye.transmission", self.transmission, lo=0, hi=1, lo_open=True),
         )
 
     @classmethod
     def from_focal_length(cls, focal_length_mm: float, **kwargs) -> Eye:
         """An eye given its effective focal length in mm instead of µm/deg."""
-        fl = v.number("eye.focal_length_mm", focal_length_mm, lo=0, lo_open=True)
+        fl = validate.number("eye.focal_length_mm", focal_length_mm, lo=0, lo_open=True)
         return cls(um_per_deg=fl * 1e3 * math.pi / 180.0, **kwargs)
 
     @property

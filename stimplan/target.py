@@ -22,7 +22,7 @@ import numpy as np
 import scipy.sparse as sp
 from scipy import ndimage
 
-from . import _validate as v
+from . import validate
 from .errors import ConfigError
 from .grid import RetinalGrid, interval_overlap
 
@@ -60,7 +60,7 @@ class Target:
     def __post_init__(self) -> None:
         if not isinstance(self.grid, RetinalGrid):
             raise ConfigError("target.grid", self.grid, "a RetinalGrid")
-        t = v.finite_array("target.intensity", self.intensity, shape=self.grid.shape, lo=0.0)
+        t = validate.finite_array("target.intensity", self.intensity, shape=self.grid.shape, lo=0.0)
         if t.size and float(t.max()) > 1.0 + 1e-6:
             raise ConfigError(
                 "target.intensity", float(t.max()), "values in [0, 1]", "scale the pattern first"
@@ -111,7 +111,7 @@ class Target:
         cls, intensity: np.ndarray, grid: RetinalGrid, *, name: str = "target"
     ) -> Target:
         """A target whose whole field is signal (plain GS/WGS use)."""
-        arr = v.finite_array("target.intensity", intensity, shape=grid.shape, lo=0.0)
+        arr = validate.finite_array("target.intensity", intensity, shape=grid.shape, lo=0.0)
         peak = float(arr.max()) if arr.size else 0.0
         if peak <= 0:
             raise ConfigError("target.intensity", "all zero", "at least one lit sample")
@@ -119,7 +119,7 @@ class Target:
 
     def with_window(self, margin_samples: int = 4) -> Target:
         """Signal region = lit samples dilated by ``margin_samples``; the rest free (MRAF)."""
-        m = v.integer("margin_samples", margin_samples, lo=0)
+        m = validate.integer("margin_samples", margin_samples, lo=0)
         sig = self.lit
         if m:
             sig = ndimage.binary_dilation(sig, iterations=m)
@@ -167,7 +167,7 @@ class Target:
         which : {"lit", "signal", "dark", "free"}
         """
         mask = {"lit": self.lit, "signal": self.signal, "dark": self.dark, "free": self.free}[
-            v.choice("which", which, ("lit", "signal", "dark", "free"))
+            validate.choice("which", which, ("lit", "signal", "dark", "free"))
         ]
         return resample_coverage(mask.astype(np.float32), self.grid, grid)
 

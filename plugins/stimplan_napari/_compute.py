@@ -109,12 +109,12 @@ def with_slm_pixels(system, pixels: int | None):
     -------
     OpticalSystem
     """
-    from stimplan import _validate as v
+    from stimplan import validate
     from stimplan.system import MAX_SLM_PIXELS
 
     if not pixels:
         return system
-    n = v.integer("slm pixels per side", pixels, lo=16, hi=MAX_SLM_PIXELS)
+    n = validate.integer("slm pixels per side", pixels, lo=16, hi=MAX_SLM_PIXELS)
     slm = system.slm
     k = n / max(slm.pixels_x, slm.pixels_y)
     ill = replace(system.illumination, waist_mm=system.illumination.waist_mm * k)
@@ -253,7 +253,7 @@ class StimulusResult:
 
 
 def _one_step_spec(request: StimulusRequest):
-    from stimplan import _validate as v
+    from stimplan import validate
     from stimplan.errors import ConfigError
     from stimplan.holography import IftaSettings
     from stimplan.implant import implant_preset
@@ -261,10 +261,10 @@ def _one_step_spec(request: StimulusRequest):
     from stimplan.stimuli import stimulus_from_dict
 
     base = load_optics(request.optics)
-    v.choice("stimulus.kind", request.kind, PANEL_KINDS)
+    validate.choice("stimulus.kind", request.kind, PANEL_KINDS)
     system = with_slm_pixels(base.system, request.slm_pixels)
     power = base.system.illumination.power_mw if request.power_mw is None else request.power_mw
-    power = v.number("laser power_mw", power, lo=0, lo_open=True)
+    power = validate.number("laser power_mw", power, lo=0, lo_open=True)
     system = replace(system, illumination=replace(system.illumination, power_mw=power))
     if request.implant == SOURCE_IMPLANT:
         implant = base.implant

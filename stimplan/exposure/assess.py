@@ -39,7 +39,7 @@ from typing import Any
 
 import numpy as np
 
-from .. import _validate as v
+from .. import validate
 from ..cautions import CAUTION_SHORT, CAUTIONS, EDITION
 from ..errors import ConfigError
 from ..grid import RetinalGrid
@@ -96,7 +96,7 @@ def default_acceptance_angles_mrad(n: int = 7) -> tuple[float, ...]:
     .. [1] Directive 2006/25/EC, Annex II, Table 2.5: alpha_min = 1.5 mrad,
        alpha_max = 100 mrad.
     """
-    k = v.integer("n", n, lo=2)
+    k = validate.integer("n", n, lo=2)
     return tuple(float(a) for a in np.geomspace(ALPHA_MIN_MRAD, ALPHA_MAX_MRAD, k))
 
 
@@ -188,11 +188,11 @@ class ExposureAssessment:
 
     def worst_ratio_per_mw(self, laser_power_mw: float) -> float:
         """Worst ratio per mW of laser power, given the power the maps were computed at."""
-        p = v.number("laser_power_mw", laser_power_mw, lo=0.0, lo_open=True)
+        p = validate.number("laser_power_mw", laser_power_mw, lo=0.0, lo_open=True)
         return self.worst_ratio / p
 
     def protocol_ratio_per_mw(self, laser_power_mw: float) -> float | None:
-        p = v.number("laser_power_mw", laser_power_mw, lo=0.0, lo_open=True)
+        p = validate.number("laser_power_mw", laser_power_mw, lo=0.0, lo_open=True)
         return None if self.protocol is None else self.protocol.worst_ratio / p
 
     def binding_text(self) -> str:
@@ -448,7 +448,7 @@ def _check_angles(alphas_mrad: Iterable[float] | None) -> list[float]:
         return list(default_acceptance_angles_mrad())
     out = set()
     for k, a in enumerate(alphas_mrad):
-        x = v.number(f"alphas_mrad[{k}]", a, lo=ALPHA_MIN_MRAD, hi=ALPHA_MAX_MRAD)
+        x = validate.number(f"alphas_mrad[{k}]", a, lo=ALPHA_MIN_MRAD, hi=ALPHA_MAX_MRAD)
         out.add(x)
     # the bound covers the whole range, so both ends are always evaluated
     return sorted(out | {ALPHA_MIN_MRAD, ALPHA_MAX_MRAD})
@@ -509,7 +509,7 @@ def assess_sequence(
     grid = check_grid(grid)
     lam = check_wavelength(wavelength_nm)
     eye = check_eye(eye)
-    tol = v.number("tolerance", tolerance, lo=1e-4, hi=0.5)
+    tol = validate.number("tolerance", tolerance, lo=1e-4, hi=0.5)
     if protocol is not None and not isinstance(protocol, ProtocolCap):
         raise ConfigError("protocol", protocol, "a ProtocolCap or None")
     items = as_frames(frames, grid)
@@ -766,7 +766,7 @@ def evaluate_map(
     ----------
     .. [1] ICNIRP (2013); Directive 2006/25/EC, Annex II.
     """
-    t = v.number("duration_s", duration_s, lo=0.0, lo_open=True)
+    t = validate.number("duration_s", duration_s, lo=0.0, lo_open=True)
     return assess_sequence(
         [Frame(irradiance_mw_per_mm2, (Pulse(0.0, t * 1e3),))],
         grid,

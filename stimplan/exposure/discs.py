@@ -25,7 +25,7 @@ import numba as nb
 import numpy as np
 import scipy.fft as sfft
 
-from .. import _validate as v
+from .. import validate
 from ..errors import ConfigError
 from ..grid import RetinalGrid
 from .disc_bound import cell_areas_um2
@@ -322,7 +322,7 @@ def check_grid(grid: Any) -> RetinalGrid:
 
 
 def check_map(value: Any, grid: RetinalGrid, field: str) -> np.ndarray:
-    return v.finite_array(field, value, shape=grid.shape, lo=0.0, dtype=np.float32)
+    return validate.finite_array(field, value, shape=grid.shape, lo=0.0, dtype=np.float32)
 
 
 def disc_power_map(irradiance_mw_per_mm2: Any, grid: RetinalGrid, diameter_um: float) -> np.ndarray:
@@ -352,7 +352,7 @@ def disc_power_map(irradiance_mw_per_mm2: Any, grid: RetinalGrid, diameter_um: f
     """
     grid = check_grid(grid)
     irr = check_map(irradiance_mw_per_mm2, grid, "irradiance_mw_per_mm2")
-    d = v.number("diameter_um", diameter_um, lo=0.0, lo_open=True)
+    d = validate.number("diameter_um", diameter_um, lo=0.0, lo_open=True)
     return DiscIntegrator(grid, d).power_map_mw(np.ascontiguousarray(irr), d)
 
 

@@ -39,7 +39,7 @@ from typing import Any
 
 import numpy as np
 
-from .. import _validate as v
+from .. import validate
 from ..errors import ConfigError
 
 __all__ = [
@@ -75,7 +75,7 @@ ALPHA_MAX_MRAD = 100.0
 
 def check_wavelength(value: Any, field: str = "wavelength_nm") -> float:
     """A wavelength in the supported range, or a :class:`ConfigError` saying why not."""
-    lam = v.number(field, value)
+    lam = validate.number(field, value)
     if lam < WAVELENGTH_MIN_NM or lam > WAVELENGTH_MAX_NM:
         why = (
             "below 700 nm the visible-light limits (photochemical up to 600 nm, C_A = 1) "
@@ -90,7 +90,7 @@ def check_wavelength(value: Any, field: str = "wavelength_nm") -> float:
 
 def check_duration(value: Any, field: str = "duration_s") -> float:
     """An exposure duration in the supported range (1 ns to 3e4 s)."""
-    t = v.number(field, value, lo=0.0, lo_open=True)
+    t = validate.number(field, value, lo=0.0, lo_open=True)
     if t < DURATION_MIN_S * (1 - 1e-12) or t > DURATION_MAX_S:
         why = (
             "exposures under 1 ns are not supported: the published editions disagree there"

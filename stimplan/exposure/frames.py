@@ -16,7 +16,7 @@ from typing import Any
 import numba as nb
 import numpy as np
 
-from .. import _validate as v
+from .. import validate
 from ..cautions import CAUTIONS, EDITION
 from ..errors import ConfigError
 from ..grid import RetinalGrid
@@ -113,7 +113,7 @@ def call_map(source: Callable[[], Any], field: str) -> Any:
 def load_map(source: Any, shape: tuple[int, int] | None, field: str) -> np.ndarray:
     value = call_map(source, field) if callable(source) else source
     ndim = 2 if shape is None else None
-    return v.finite_array(field, value, shape=shape, ndim=ndim, lo=0.0, dtype=np.float32)
+    return validate.finite_array(field, value, shape=shape, ndim=ndim, lo=0.0, dtype=np.float32)
 
 
 @dataclass(frozen=True)
@@ -148,7 +148,7 @@ class ProtocolCap:
             val = getattr(self, name)
             if val is not None:
                 object.__setattr__(
-                    self, name, v.number(f"protocol.{name}", val, lo=0.0, lo_open=True)
+                    self, name, validate.number(f"protocol.{name}", val, lo=0.0, lo_open=True)
                 )
 
 

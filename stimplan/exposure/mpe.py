@@ -37,7 +37,7 @@ from typing import Any
 
 import numpy as np
 
-from .. import _validate as v
+from .. import validate
 from ..cautions import CAUTION_SHORT, CAUTIONS, EDITION
 from .factors import (
     ALPHA_MIN_MRAD,
@@ -186,7 +186,7 @@ def corneal_mpe(wavelength_nm: float, duration_s: float, alpha_mrad: float) -> C
     """
     lam = check_wavelength(wavelength_nm)
     t = check_duration(duration_s)
-    a = v.number("alpha_mrad", alpha_mrad, lo=0.0)
+    a = validate.number("alpha_mrad", alpha_mrad, lo=0.0)
     h = thermal_limit_j_per_m2(lam, t, a)
     return CornealMPE(
         wavelength_nm=lam,

@@ -13,7 +13,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, field
 
-from .. import _validate as v
+from .. import validate
 from ..cautions import CAUTION_SHORT, CAUTIONS, EDITION
 from ..errors import ConfigError
 from .assess import ExposureAssessment
@@ -51,7 +51,7 @@ class PerMilliwatt:
         object.__setattr__(
             self,
             "irradiance_mw_per_mm2",
-            v.number(
+            validate.number(
                 f"{self.label}.irradiance_mw_per_mm2 (per mW)",
                 self.irradiance_mw_per_mm2,
                 lo=0.0,
@@ -61,13 +61,15 @@ class PerMilliwatt:
         object.__setattr__(
             self,
             "worst_ratio",
-            v.number(f"{self.label}.worst_ratio (per mW)", self.worst_ratio, lo=0.0),
+            validate.number(f"{self.label}.worst_ratio (per mW)", self.worst_ratio, lo=0.0),
         )
         if self.protocol_ratio is not None:
             object.__setattr__(
                 self,
                 "protocol_ratio",
-                v.number(f"{self.label}.protocol_ratio (per mW)", self.protocol_ratio, lo=0.0),
+                validate.number(
+                    f"{self.label}.protocol_ratio (per mW)", self.protocol_ratio, lo=0.0
+                ),
             )
 
     @classmethod
@@ -81,8 +83,8 @@ class PerMilliwatt:
         irradiance_basis: str = "mean ON-pixel irradiance",
     ) -> PerMilliwatt:
         """Divide an assessment made at ``laser_power_mw`` by that power."""
-        p = v.number("laser_power_mw", laser_power_mw, lo=0.0, lo_open=True)
-        e = v.number("irradiance_mw_per_mm2", irradiance_mw_per_mm2, lo=0.0, lo_open=True)
+        p = validate.number("laser_power_mw", laser_power_mw, lo=0.0, lo_open=True)
+        e = validate.number("irradiance_mw_per_mm2", irradiance_mw_per_mm2, lo=0.0, lo_open=True)
         return cls(
             e / p,
             assessment.worst_ratio / p,
@@ -162,7 +164,7 @@ def plan_power(
     ----------
     .. [1] common practice: irradiance and exposure are linear in laser power.
     """
-    target = v.number(
+    target = validate.number(
         "target_irradiance_mw_per_mm2", target_irradiance_mw_per_mm2, lo=0.0, lo_open=True
     )
     if not isinstance(per_mw, PerMilliwatt):
@@ -170,7 +172,7 @@ def plan_power(
     lmax = (
         None
         if laser_max_mw is None
-        else v.number("laser_max_mw", laser_max_mw, lo=0.0, lo_open=True)
+        else validate.number("laser_max_mw", laser_max_mw, lo=0.0, lo_open=True)
     )
     power = target / per_mw.irradiance_mw_per_mm2
     ratio = per_mw.worst_ratio * power

@@ -31,7 +31,7 @@ from typing import Any
 
 import numpy as np
 
-from .. import _validate as v
+from .. import validate
 from ..cautions import CAUTION_SHORT, CAUTIONS, EDITION
 from ..errors import ConfigError
 from .factors import DURATION_MAX_S, c_p, check_wavelength, grouping_times_s
@@ -90,11 +90,13 @@ class Pulse:
     scale: float = 1.0
 
     def __post_init__(self) -> None:
-        object.__setattr__(self, "start_ms", v.number("start_ms", self.start_ms, lo=0.0))
+        object.__setattr__(self, "start_ms", validate.number("start_ms", self.start_ms, lo=0.0))
         object.__setattr__(
-            self, "duration_ms", v.number("duration_ms", self.duration_ms, lo=0.0, lo_open=True)
+            self,
+            "duration_ms",
+            validate.number("duration_ms", self.duration_ms, lo=0.0, lo_open=True),
         )
-        object.__setattr__(self, "scale", v.number("scale", self.scale, lo=0.0))
+        object.__setattr__(self, "scale", validate.number("scale", self.scale, lo=0.0))
 
     @property
     def end_ms(self) -> float:
@@ -165,13 +167,13 @@ def periodic_pulses(
     ----------
     .. [1] ICNIRP (2013): repeated-pulse rules are applied to the actual pulse timeline.
     """
-    w = v.number("pulse_ms", pulse_ms, lo=0.0, lo_open=True)
+    w = validate.number("pulse_ms", pulse_ms, lo=0.0, lo_open=True)
     if (period_ms is None) == (frequency_hz is None):
         raise ConfigError("period_ms", period_ms, "exactly one of period_ms and frequency_hz")
     if period_ms is not None:
-        period = v.number("period_ms", period_ms, lo=0.0, lo_open=True)
+        period = validate.number("period_ms", period_ms, lo=0.0, lo_open=True)
     else:
-        period = 1000.0 / v.number("frequency_hz", frequency_hz, lo=0.0, lo_open=True)
+        period = 1000.0 / validate.number("frequency_hz", frequency_hz, lo=0.0, lo_open=True)
     if w > period * (1 + 1e-12):
         raise ConfigError(
             "pulse_ms",
@@ -182,12 +184,12 @@ def periodic_pulses(
     if (count is None) == (duration_ms is None):
         raise ConfigError("count", count, "exactly one of count and duration_ms")
     if count is not None:
-        n = v.integer("count", count, lo=1)
+        n = validate.integer("count", count, lo=1)
     else:
-        total = v.number("duration_ms", duration_ms, lo=w)
+        total = validate.number("duration_ms", duration_ms, lo=w)
         n = int(math.floor((total - w) / period + 1e-9)) + 1
-    t0 = v.number("start_ms", start_ms, lo=0.0)
-    s = v.number("scale", scale, lo=0.0)
+    t0 = validate.number("start_ms", start_ms, lo=0.0)
+    s = validate.number("scale", scale, lo=0.0)
     return [Pulse(t0 + k * period, w, s) for k in range(n)]
 
 
@@ -613,8 +615,8 @@ def evaluate_train(
     .. [2] ICNIRP (2013), repeated exposure.
     """
     lam = check_wavelength(wavelength_nm)
-    a = v.number("alpha_mrad", alpha_mrad, lo=0.0)
-    power = v.number("peak_retinal_power_mw", peak_retinal_power_mw, lo=0.0, lo_open=True)
+    a = validate.number("alpha_mrad", alpha_mrad, lo=0.0)
+    power = validate.number("peak_retinal_power_mw", peak_retinal_power_mw, lo=0.0, lo_open=True)
     eye = check_eye(eye)
     items = as_pulses(pulses)
     if not items:

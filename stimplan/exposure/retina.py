@@ -24,7 +24,7 @@ import math
 from dataclasses import dataclass
 from typing import Any
 
-from .. import _validate as v
+from .. import validate
 from ..errors import ConfigError
 from .factors import ALPHA_MIN_MRAD
 
@@ -73,12 +73,12 @@ class EyeModel:
         object.__setattr__(
             self,
             "focal_length_mm",
-            v.number("eye.focal_length_mm", self.focal_length_mm, lo=0, lo_open=True),
+            validate.number("eye.focal_length_mm", self.focal_length_mm, lo=0, lo_open=True),
         )
         object.__setattr__(
             self,
             "transmission",
-            v.number("eye.transmission", self.transmission, lo=0, hi=1, lo_open=True),
+            validate.number("eye.transmission", self.transmission, lo=0, hi=1, lo_open=True),
         )
 
     def image_diameter_um(self, alpha_mrad: float) -> float:
@@ -107,7 +107,7 @@ def retinal_image_diameter_um(alpha_mrad: float, eye: EyeModel = HUMAN_EYE) -> f
     ----------
     .. [1] ICNIRP (2013): alpha_min = 1.5 mrad; 1 mrad x 1 mm = 1 um.
     """
-    a = v.number("alpha_mrad", alpha_mrad, lo=0.0)
+    a = validate.number("alpha_mrad", alpha_mrad, lo=0.0)
     return max(a, ALPHA_MIN_MRAD) * check_eye(eye).focal_length_mm
 
 
@@ -118,7 +118,7 @@ def power_into_eye_mw(corneal_irradiance_w_per_m2: float) -> float:
     ----------
     .. [1] ICNIRP (2013): limits averaged over the 7 mm aperture.
     """
-    e = v.number("corneal_irradiance_w_per_m2", corneal_irradiance_w_per_m2, lo=0.0)
+    e = validate.number("corneal_irradiance_w_per_m2", corneal_irradiance_w_per_m2, lo=0.0)
     return e * LIMITING_APERTURE_AREA_M2 * 1e3
 
 

@@ -19,7 +19,7 @@ from dataclasses import dataclass, replace
 import numba as nb
 import numpy as np
 
-from .. import _validate as v
+from .. import validate
 from ..errors import ConfigError
 from ..target import Target
 from .ifta import IftaSettings, run_ifta
@@ -93,8 +93,8 @@ def offset_to_samples(offset_um: tuple[float, float], grid) -> tuple[int, int]:
     """Retinal offset ``(x_um, y_um)`` as whole design samples ``(rows, cols)``."""
     if len(offset_um) != 2:
         raise ConfigError("offset_um", offset_um, "a pair (x_um, y_um)")
-    x = v.number("offset_um[0]", offset_um[0])
-    y = v.number("offset_um[1]", offset_um[1])
+    x = validate.number("offset_um[0]", offset_um[0])
+    y = validate.number("offset_um[1]", offset_um[1])
     return int(round(-y / grid.pitch_y_um)), int(round(x / grid.pitch_x_um))
 
 

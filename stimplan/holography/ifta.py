@@ -29,10 +29,10 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.fft as sfft
 
-from .. import _validate as v
+from .. import validate
 from ..errors import ConfigError
 from ..target import Target
-from . import _kernels as _K
+from . import kernels
 
 __all__ = ["IftaSettings", "IftaResult", "run_ifta", "METHODS"]
 
@@ -85,32 +85,42 @@ class IftaSettings:
 
     def __post_init__(self) -> None:
         f = object.__setattr__
-        v.choice("hologram.method", self.method, METHODS)
-        f(self, "iterations", v.integer("hologram.iterations", self.iterations, lo=1, hi=10000))
-        f(self, "seed", v.integer("hologram.seed", self.seed, lo=0, hi=2**63 - 1))
+        validate.choice("hologram.method", self.method, METHODS)
+        f(
+            self,
+            "iterations",
+            validate.integer("hologram.iterations", self.iterations, lo=1, hi=10000),
+        )
+        f(self, "seed", validate.integer("hologram.seed", self.seed, lo=0, hi=2**63 - 1))
         f(
             self,
             "mraf_mix",
-            v.number("hologram.mraf_mix", self.mraf_mix, lo=0, hi=1, lo_open=True),
+            validate.number("hologram.mraf_mix", self.mraf_mix, lo=0, hi=1, lo_open=True),
         )
         f(
             self,
             "window_margin_samples",
-            v.integer("hologram.window_margin_samples", self.window_margin_samples, lo=0, hi=1000),
+            validate.integer(
+                "hologram.window_margin_samples", self.window_margin_samples, lo=0, hi=1000
+            ),
         )
         f(
             self,
             "quantized_iterations",
-            v.integer(
+            validate.integer(
                 "hologram.quantized_iterations", self.quantized_iterations, lo=0, hi=self.iterations
             ),
         )
-        v.choice("hologram.initial", self.initial, ("random", "lens"))
-        f(self, "group_weighting", v.boolean("hologram.group_weighting", self.group_weighting))
+        validate.choice("hologram.initial", self.initial, ("random", "lens"))
+        f(
+            self,
+            "group_weighting",
+            validate.boolean("hologram.group_weighting", self.group_weighting),
+        )
         f(
             self,
             "group_gain",
-            v.number("hologram.group_gain", self.group_gain, lo=0, hi=2, lo_open=True),
+            validate.number("hologram.group_gain", self.group_gain, lo=0, hi=2, lo_open=True),
         )
 
 
@@ -178,11 +188,11 @@ def run_ifta(
        al. (2007); [4] Pasienski & DeMarco (2008).
     """
     st = settings or IftaSettings()
-    K = _K.SERIAL if workers == 1 else _K.PARALLEL
+    K = kernels.SERIAL if workers == 1 else kernels.PARALLEL
     if not isinstance(target, Target):
         raise ConfigError("target", type(target).__name__, "a stimplan Target")
     shape = target.shape
-    src = v.finite_array("source_amplitude", source_amplitude, shape=shape, lo=0.0)
+    src = validate.finite_array("source_amplitude", source_amplitude, shape=shape, lo=0.0)
     if float(src.max()) <= 0:
         raise ConfigError("source_amplitude", "all zero", "a beam with non-zero amplitude")
     if st.quantized_iterations and phase_levels is None:
@@ -213,7 +223,7 @@ def run_ifta(
     elif initial_phase_rad is None:
         phase0 = rng.uniform(0.0, 2 * np.pi, size=shape).astype(np.float32)
     else:
-        phase0 = v.finite_array("initial_phase_rad", initial_phase_rad, shape=shape)
+        phase0 = validate.finite_array("initial_phase_rad", initial_phase_rad, shape=shape)
     e = fft_order(phase0, np.float32)
     e = (src_f * np.exp(1j * e)).astype(np.complex64)
     e2 = e.reshape(shape)

@@ -37,11 +37,11 @@ from functools import lru_cache
 import numpy as np
 import scipy.fft as sfft
 
-from .. import _validate as v
+from .. import validate
 from ..errors import ConfigError
 from ..grid import RetinalGrid
-from . import _kernels as _K
-from ._kernels import gather_scaled
+from . import kernels
+from .kernels import gather_scaled
 
 __all__ = [
     "far_field",
@@ -154,7 +154,7 @@ def pixel_aperture_axes(
     ----------
     .. [1] Goodman (2005), §4.2.2, eq. (4-28).
     """
-    f = v.number("aperture_fraction", aperture_fraction, lo=0, hi=1, lo_open=True)
+    f = validate.number("aperture_fraction", aperture_fraction, lo=0, hi=1, lo_open=True)
     ky = (np.arange(shape[0]) - shape[0] // 2) / samples_per_order[0]
     kx = (np.arange(shape[1]) - shape[1] // 2) / samples_per_order[1]
     return (np.sinc(f * ky) ** 2).astype(dtype), (np.sinc(f * kx) ** 2).astype(dtype)
@@ -263,7 +263,7 @@ class RetinalPrediction:
 
     def scaled_to(self, power_mw: float) -> RetinalPrediction:
         """The same prediction at another laser power (the optics are linear)."""
-        p = v.number("power_mw", power_mw, lo=0, lo_open=True)
+        p = validate.number("power_mw", power_mw, lo=0, lo_open=True)
         k = p / self.power_mw
         return replace(
             self,
@@ -320,7 +320,7 @@ def _far_power(
     """``|far_field(pad_centered(amplitude exp(i phase) pupil))|² * weight * scale`` (float32),
     ``weight = outer(weight_rows, weight_cols)``, with the shifts folded into two fused
     passes around one in-place FFT on a per-thread work plane."""
-    kern = _K.SERIAL if workers == 1 else _K.PARALLEL
+    kern = kernels.SERIAL if workers == 1 else kernels.PARALLEL
     amp = np.ascontiguousarray(amplitude, dtype=np.float32)
     ph = np.zeros_like(amp) if phase_rad is None else np.ascontiguousarray(phase_rad, np.float32)
     pu = np.ones_like(amp) if pupil is None else np.ascontiguousarray(pupil, dtype=np.float32)
@@ -381,8 +381,8 @@ def predict_retina(
     .. [2] Parseval's theorem for the unitary DFT (Goodman, §2.1).
     """
     slm = system.slm
-    s = v.integer("oversample", oversample, lo=2, hi=16)
-    phase = v.finite_array("hologram.phase_rad", displayed_phase_rad, shape=slm.shape)
+    s = validate.integer("oversample", oversample, lo=2, hi=16)
+    phase = validate.finite_array("hologram.phase_rad", displayed_phase_rad, shape=slm.shape)
     system.check_pupil()
     amp, pupil, beam_in_pupil_mw = _beam_on_slm(system)
     p_in = float(system.illumination.power_mw)
@@ -410,9 +410,9 @@ def predict_retina(
     power_mod = _far_power(amp, mod_phase, pupil, padded, env_r, env_c, 1.0 - z, workers)
     region = None
     if signal_region is not None:
-        region = v.finite_array("signal_region", signal_region, shape=padded, lo=0, hi=1)
+        region = validate.finite_array("signal_region", signal_region, shape=padded, lo=0, hi=1)
         region = np.ascontiguousarray(region, dtype=np.float32).reshape(-1)
-    kern = _K.SERIAL if workers == 1 else _K.PARALLEL
+    kern = kernels.SERIAL if workers == 1 else kernels.PARALLEL
     no_region = np.zeros(1, np.float32)
     tau32 = np.float32(tau)
     inv_area = np.float32(1.0 / grid.sample_area_mm2)
@@ -516,9 +516,9 @@ def with_higher_orders(
     .. [1] J. W. Goodman, *Introduction to Fourier Optics*, 3rd ed. (2005),
        §4.2.2, eq. (4-28), and the periodicity of the DFT (§2.1).
     """
-    f = float(np.sqrt(v.number("slm.fill_factor", fill_factor, lo=0, hi=1, lo_open=True)))
+    f = float(np.sqrt(validate.number("slm.fill_factor", fill_factor, lo=0, hi=1, lo_open=True)))
     rows, cols = grid.shape
-    m = v.integer("margin_samples", margin_samples, lo=0, hi=min(rows, cols))
+    m = validate.integer("margin_samples", margin_samples, lo=0, hi=min(rows, cols))
     if m == 0:
         return irradiance_mw_per_mm2, grid
 

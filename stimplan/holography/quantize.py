@@ -19,7 +19,7 @@ from pathlib import Path
 import numba as nb
 import numpy as np
 
-from .. import _validate as v
+from .. import validate
 from ..errors import ConfigError, InputFileError
 
 __all__ = ["GreyLevelMap", "quantize_phase", "level_dtype"]
@@ -52,7 +52,7 @@ def quantize_phase(phase_rad: np.ndarray, levels: int) -> np.ndarray:
     .. [1] Swanson (1989), §2: a staircase of ``L`` levels approximating a
        blazed ramp.
     """
-    levels = v.integer("slm.phase_levels", levels, lo=2, hi=65536)
+    levels = validate.integer("slm.phase_levels", levels, lo=2, hi=65536)
     phase = np.ascontiguousarray(phase_rad, dtype=np.float32)
     out = np.empty(phase.shape, dtype=level_dtype(levels))
     _quantize(phase.reshape(-1), np.float32(levels / TWO_PI), levels, out.reshape(-1))
@@ -114,8 +114,12 @@ class GreyLevelMap:
         grey_2pi : int, optional
             Grey value that would give 2π; defaults to ``levels``.
         """
-        levels = v.integer("slm.phase_levels", levels, lo=2, hi=65536)
-        g2 = levels if grey_2pi is None else v.integer("slm.grey_2pi", grey_2pi, lo=1, hi=65536)
+        levels = validate.integer("slm.phase_levels", levels, lo=2, hi=65536)
+        g2 = (
+            levels
+            if grey_2pi is None
+            else validate.integer("slm.grey_2pi", grey_2pi, lo=1, hi=65536)
+        )
         k = np.arange(levels)
         grey = np.rint(k * (g2 / levels)).astype(np.int64)
         if np.unique(grey).size != levels:
@@ -138,7 +142,7 @@ class GreyLevelMap:
         levels : int
             Number of phase levels to serve.
         """
-        levels = v.integer("slm.phase_levels", levels, lo=2, hi=65536)
+        levels = validate.integer("slm.phase_levels", levels, lo=2, hi=65536)
         p = Path(path)
         try:
             text = p.read_text()

@@ -9,7 +9,7 @@ from collections.abc import Mapping
 from pathlib import Path
 from typing import Any
 
-from .. import _validate as v
+from .. import validate
 from ..baseline import MASK_PRESETS
 from ..errors import ConfigError
 from ..exposure import check_wavelength
@@ -210,7 +210,7 @@ def _assemble(
     seed = 0
     if "seed" in raw:
         try:
-            seed = v.integer("seed", raw["seed"], lo=0, hi=SEED_MAX)
+            seed = validate.integer("seed", raw["seed"], lo=0, hi=SEED_MAX)
         except ConfigError as exc:
             report.add_exc(exc, "seed")
     slm, laser, relay = read_optics(report, raw, base_dir)

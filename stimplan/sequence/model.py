@@ -7,7 +7,7 @@ from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 from typing import Any
 
-from .. import _validate as v
+from .. import validate
 from ..baseline import MASK_PRESETS, AmplitudeMask
 from ..errors import ConfigError
 from ..exposure import ProtocolCap
@@ -30,7 +30,7 @@ __all__ = ["pair_um", "check_step_values", "StepSpec", "SequenceSpec"]
 def pair_um(path: str, value: Any) -> tuple[float, float]:
     if not isinstance(value, (list, tuple)) or len(value) != 2:
         raise ConfigError(path, value, "a pair [x, y] of numbers (µm)")
-    return (v.number(f"{path}[0]", value[0]), v.number(f"{path}[1]", value[1]))
+    return (validate.number(f"{path}[0]", value[0]), validate.number(f"{path}[1]", value[1]))
 
 
 def check_step_values(prefix: str, d: Mapping[str, Any], errors: list[ConfigError]) -> dict:
@@ -48,7 +48,7 @@ def check_step_values(prefix: str, d: Mapping[str, Any], errors: list[ConfigErro
             errors.append(ConfigError(f"{prefix}.{name}", d[name], "a number", str(exc)))
 
     def positive(f: str, x: Any) -> float:
-        return v.number(f, x, lo=0, lo_open=True)
+        return validate.number(f, x, lo=0, lo_open=True)
 
     for name in (
         "duration_ms",
@@ -59,9 +59,9 @@ def check_step_values(prefix: str, d: Mapping[str, Any], errors: list[ConfigErro
         "alternate_ms",
     ):
         take(name, positive)
-    take("blank_after_ms", lambda f, x: v.number(f, x, lo=0))
-    take("repeat", lambda f, x: v.integer(f, x, lo=1, hi=MAX_FRAMES))
-    take("irradiance_basis", lambda f, x: v.choice(f, x, IRRADIANCE_BASES))
+    take("blank_after_ms", lambda f, x: validate.number(f, x, lo=0))
+    take("repeat", lambda f, x: validate.integer(f, x, lo=1, hi=MAX_FRAMES))
+    take("irradiance_basis", lambda f, x: validate.choice(f, x, IRRADIANCE_BASES))
     pulse, rate = out.get("pulse_ms"), out.get("rate_hz")
     dur, alt = out.get("duration_ms"), out.get("alternate_ms")
     if pulse is not None and rate is not None:
@@ -273,7 +273,7 @@ class SequenceSpec:
         f = object.__setattr__
         if not isinstance(self.title, str):
             raise ConfigError("title", self.title, "a string")
-        f(self, "seed", v.integer("seed", self.seed, lo=0, hi=SEED_MAX))
+        f(self, "seed", validate.integer("seed", self.seed, lo=0, hi=SEED_MAX))
         for name, cls in (
             ("system", OpticalSystem),
             ("ifta", IftaSettings),
@@ -297,18 +297,18 @@ class SequenceSpec:
         for name, stim in self.stimuli.items():
             if not isinstance(stim, Stimulus):
                 raise ConfigError(f"stimuli.{name}", stim, "a Stimulus")
-        f(self, "implant_aware", v.boolean("hologram.implant_aware", self.implant_aware))
+        f(self, "implant_aware", validate.boolean("hologram.implant_aware", self.implant_aware))
         if self.implant_aware and self.implant is None:
             raise ConfigError("hologram.implant_aware", True, "false without an implant")
-        f(self, "oversample", v.integer("hologram.oversample", self.oversample, lo=2, hi=8))
+        f(self, "oversample", validate.integer("hologram.oversample", self.oversample, lo=2, hi=8))
         f(self, "offset_um", pair_um("hologram.offset_um", self.offset_um))
         f(
             self,
             "on_threshold",
-            v.number("hologram.on_threshold", self.on_threshold, lo=0, hi=1, lo_open=True),
+            validate.number("hologram.on_threshold", self.on_threshold, lo=0, hi=1, lo_open=True),
         )
-        f(self, "shuffle", v.boolean("order.shuffle", self.shuffle))
-        f(self, "repeats", v.integer("order.repeats", self.repeats, lo=1, hi=MAX_FRAMES))
+        f(self, "shuffle", validate.boolean("order.shuffle", self.shuffle))
+        f(self, "repeats", validate.integer("order.repeats", self.repeats, lo=1, hi=MAX_FRAMES))
 
     def to_dict(self) -> dict[str, Any]:
         """The fully resolved configuration, JSON-able, in the layout of the file.

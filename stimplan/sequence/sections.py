@@ -12,7 +12,7 @@ from collections.abc import Callable, Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
-from .. import _validate as v
+from .. import validate
 from ..baseline import MASK_PRESETS, AmplitudeMask
 from ..errors import ConfigError, StimplanError
 from ..exposure import ProtocolCap
@@ -85,7 +85,7 @@ def _make_eye(**kw: Any) -> Eye:
             raise ConfigError(
                 "eye.focal_length_mm", fl, "either um_per_deg or focal_length_mm, not both"
             )
-        kw["um_per_deg"] = v.number("eye.focal_length_mm", fl, lo=0, lo_open=True) * (
+        kw["um_per_deg"] = validate.number("eye.focal_length_mm", fl, lo=0, lo_open=True) * (
             1e3 * math.pi / 180.0
         )
     if preset is not None:
@@ -122,7 +122,7 @@ def _make_implant(**kw: Any) -> Implant:
 
 
 def make_mask(**kw: Any) -> AmplitudeMask:
-    kind = v.choice("mask.kind", kw.pop("kind", "lcd"), tuple(MASK_PRESETS))
+    kind = validate.choice("mask.kind", kw.pop("kind", "lcd"), tuple(MASK_PRESETS))
     return dataclasses.replace(MASK_PRESETS[kind], **kw)
 
 
@@ -225,9 +225,9 @@ def read_hologram(
             except Exception as exc:
                 report.add_unexpected(f"hologram.{key}", exc)
 
-    check("implant_aware", v.boolean)
-    check("oversample", lambda f, x: v.integer(f, x, lo=2, hi=8))
-    check("on_threshold", lambda f, x: v.number(f, x, lo=0, hi=1, lo_open=True))
+    check("implant_aware", validate.boolean)
+    check("oversample", lambda f, x: validate.integer(f, x, lo=2, hi=8))
+    check("on_threshold", lambda f, x: validate.number(f, x, lo=0, hi=1, lo_open=True))
     check("offset_um", pair_um)
     if out["implant_aware"] and not has_implant:
         report.add(
@@ -272,12 +272,12 @@ def read_order(report: ErrorReport, raw: Mapping[str, Any]) -> tuple[bool, int]:
     report.unknown_keys(tbl, "order", ORDER_KEYS)
     try:
         if "shuffle" in tbl:
-            shuffle = v.boolean("order.shuffle", tbl["shuffle"])
+            shuffle = validate.boolean("order.shuffle", tbl["shuffle"])
     except ConfigError as exc:
         report.add_exc(exc, exc.field)
     try:
         if "repeats" in tbl:
-            repeats = v.integer("order.repeats", tbl["repeats"], lo=1, hi=MAX_FRAMES)
+            repeats = validate.integer("order.repeats", tbl["repeats"], lo=1, hi=MAX_FRAMES)
     except ConfigError as exc:
         report.add_exc(exc, exc.field)
     return shuffle, repeats

@@ -31,12 +31,13 @@ from __future__ import annotations
 
 import dataclasses
 import math
+from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any, ClassVar, Literal
 
 import numpy as np
 
-from .. import _validate as v
+from .. import validate
 from ..acuity import um_per_deg_of
 from ..errors import ConfigError
 from ..grid import RetinalGrid
@@ -50,6 +51,9 @@ __all__ = [
     "register",
     "STIMULUS_KINDS",
     "levels_from_contrast",
+    "check_grid",
+    "positive",
+    "build_stimulus",
 ]
 
 POLARITIES = ("bright", "dark")
@@ -76,12 +80,12 @@ def levels_from_contrast(contrast: float, polarity: str) -> tuple[float, float]:
     The brighter level is 1 and the darker ``(1 - c) / (1 + c)``, so that
     ``(max - min) / (max + min) = c``.
     """
-    c = v.number("contrast", contrast, lo=0.0, hi=1.0)
+    c = validate.number("contrast", contrast, lo=0.0, hi=1.0)
     dark = (1.0 - c) / (1.0 + c)
     return (1.0, dark) if polarity == "bright" else (dark, 1.0)
 
 
-def _check_grid(grid: Any) -> RetinalGrid:
+def check_grid(grid: Any) -> RetinalGrid:
     if not isinstance(grid, RetinalGrid):
         raise ConfigError("grid", grid, "a RetinalGrid")
     return grid
@@ -113,15 +117,12 @@ class Stimulus:
 
     def inverted(self) -> Stimulus:
         """The complement ``1 - x``."""
-        from .compose import Inverted
-
-        return Inverted(stimulus=self)
+        # the compositions register themselves as kinds: no import back up
+        return STIMULUS_KINDS["inverted"](stimulus=self)
 
     def masked(self, implant: Any, region: str = "active") -> Stimulus:
         """This stimulus, zero outside an implant's active areas (or its footprint)."""
-        from .compose import Masked
-
-        return Masked(stimulus=self, implant=implant, region=region)
+        return STIMULUS_KINDS["masked"](stimulus=self, implant=implant, region=region)
 
     # -- building from a sequence file --------------------------------------
     @classmethod
@@ -158,7 +159,7 @@ class Stimulus:
                         raise ConfigError(
                             f"{cls.kind}.{key}", p[key], f"either {key} or {target}, not both"
                         )
-                    deg = v.number(f"{cls.kind}.{key}", p.pop(key))
+                    deg = validate.number(f"{cls.kind}.{key}", p.pop(key))
                     p[target] = deg * _eye_scale(eye, f"{cls.kind}.{key}")
         allowed = set(names) | set(cls._alternatives())
         for key in p:
@@ -207,10 +208,10 @@ class Figure(Stimulus):
     def __post_init__(self) -> None:
         k = self.kind
         f = object.__setattr__
-        f(self, "contrast", v.number(f"{k}.contrast", self.contrast, lo=0.0, hi=1.0))
-        f(self, "polarity", v.choice(f"{k}.polarity", self.polarity, POLARITIES))
+        f(self, "contrast", validate.number(f"{k}.contrast", self.contrast, lo=0.0, hi=1.0))
+        f(self, "polarity", validate.choice(f"{k}.polarity", self.polarity, POLARITIES))
         for name in ("center_x_um", "center_y_um", "rotation_deg"):
-            f(self, name, v.number(f"{k}.{name}", getattr(self, name)))
+            f(self, name, validate.number(f"{k}.{name}", getattr(self, name)))
 
     # -- levels ---------------------------------------------------------------
     @property
@@ -238,8 +239,8 @@ class Figure(Stimulus):
 
     def coverage(self, grid: RetinalGrid, *, supersample: int = DEFAULT_SUPERSAMPLE) -> np.ndarray:
         """Fraction of each sample covered by the figure, float32 in [0, 1]."""
-        grid = _check_grid(grid)
-        s = v.integer("supersample", supersample, lo=1, hi=32)
+        grid = check_grid(grid)
+        s = validate.integer("supersample", supersample, lo=1, hi=32)
         return self._adaptive_coverage(grid, s)
 
     # -- geometry, for subclasses -------------------------------------------------
@@ -340,4 +341,37 @@ def _dilate(mask: np.ndarray) -> np.ndarray:
 
 def positive(kind: str, name: str, value: Any) -> float:
     """Validate a strictly positive number, with the field path ``kind.name``."""
-    return v.number(f"{kind}.{name}", value, lo=0.0, lo_open=True)
+    return validate.number(f"{kind}.{name}", value, lo=0.0, lo_open=True)
+
+
+def build_stimulus(
+    kind: str,
+    params: Mapping[str, Any] | None = None,
+    *,
+    eye: Any = None,
+    pitch_um: float | None = None,
+) -> Stimulus:
+    """A stimulus of a registered ``kind`` from keyword parameters (see
+    :func:`stimplan.stimuli.stimulus_from_dict`, which registers every kind first)."""
+    if not isinstance(kind, str) or kind not in STIMULUS_KINDS:
+        raise ConfigError("stimulus.kind", kind, "one of " + ", ".join(STIMULUS_KINDS))
+    if params is None:
+        params = {}
+    if not isinstance(params, Mapping):
+        raise ConfigError(f"{kind}", params, "a table of keyword parameters")
+    cls = STIMULUS_KINDS[kind]
+    try:
+        return cls.from_params(dict(params), eye=eye, pitch_um=pitch_um)
+    except TypeError as exc:  # a required parameter is missing
+        required = [
+            f.name
+            for f in dataclasses.fields(cls)
+            if f.default is dataclasses.MISSING and f.default_factory is dataclasses.MISSING
+        ]
+        missing = [k for k in required if k not in params]
+        raise ConfigError(
+            f"{kind}.{missing[0] if missing else 'parameters'}",
+            None,
+            "the parameters " + ", ".join(required) if required else "valid parameters",
+            str(exc),
+        ) from None

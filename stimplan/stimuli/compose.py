@@ -15,11 +15,11 @@ from typing import Any
 
 import numpy as np
 
-from .. import _validate as v
+from .. import validate
 from ..errors import ConfigError
 from ..grid import RetinalGrid
 from ..implant import Implant
-from .base import Stimulus, _check_grid, register
+from .base import Stimulus, build_stimulus, check_grid, register
 
 __all__ = ["Composite", "Inverted", "Masked", "compose", "MASK_REGIONS"]
 
@@ -56,7 +56,7 @@ class Composite(Stimulus):
         object.__setattr__(self, "stimuli", items)
 
     def render(self, grid: RetinalGrid) -> np.ndarray:
-        grid = _check_grid(grid)
+        grid = check_grid(grid)
         out = self.stimuli[0].render(grid)  # a fresh array: safe to update in place
         for s in self.stimuli[1:]:
             np.maximum(out, s.render(grid), out=out)
@@ -64,8 +64,6 @@ class Composite(Stimulus):
 
     @classmethod
     def _build(cls, p: dict[str, Any], *, eye: Any, pitch_um: Any) -> Composite:
-        from .registry import stimulus_from_dict
-
         parts = p.get("stimuli")
         if not isinstance(parts, (list, tuple)) or not parts:
             raise ConfigError("composite.stimuli", parts, "a non-empty list of stimuli")
@@ -75,7 +73,7 @@ class Composite(Stimulus):
                 built.append(item)
             elif isinstance(item, dict) and "kind" in item:
                 rest = {k: val for k, val in item.items() if k != "kind"}
-                built.append(stimulus_from_dict(item["kind"], rest, eye=eye, pitch_um=pitch_um))
+                built.append(build_stimulus(item["kind"], rest, eye=eye, pitch_um=pitch_um))
             else:
                 raise ConfigError(f"composite.stimuli[{i}]", item, "a table with a 'kind'")
         return cls(stimuli=tuple(built))
@@ -132,12 +130,14 @@ class Masked(Stimulus):
         _check_stimulus("masked.stimulus", self.stimulus)
         if not isinstance(self.implant, Implant):
             raise ConfigError("masked.implant", type(self.implant).__name__, "an Implant")
-        object.__setattr__(self, "region", v.choice("masked.region", self.region, MASK_REGIONS))
+        object.__setattr__(
+            self, "region", validate.choice("masked.region", self.region, MASK_REGIONS)
+        )
 
     def mask(self, grid: RetinalGrid) -> np.ndarray:
         """The mask, float32 in [0, 1]: fraction of each sample inside the region."""
         region = "active" if self.region == "active" else "cell"
-        raster = self.implant.rasterize(_check_grid(grid), region, check_fit=False)
+        raster = self.implant.rasterize(check_grid(grid), region, check_fit=False)
         return raster.coverage_image()
 
     def render(self, grid: RetinalGrid) -> np.ndarray:
@@ -157,11 +157,9 @@ class Masked(Stimulus):
 
 
 def _child(item: Any, field: str, eye: Any, pitch_um: Any) -> Stimulus:
-    from .registry import stimulus_from_dict
-
     if isinstance(item, Stimulus):
         return item
     if isinstance(item, dict) and "kind" in item:
         rest = {k: val for k, val in item.items() if k != "kind"}
-        return stimulus_from_dict(item["kind"], rest, eye=eye, pitch_um=pitch_um)
+        return build_stimulus(item["kind"], rest, eye=eye, pitch_um=pitch_um)
     raise ConfigError(field, item, "a stimulus or a table with a 'kind'")

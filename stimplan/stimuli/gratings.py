@@ -23,12 +23,12 @@ from typing import Any, Literal
 
 import numpy as np
 
-from .. import _validate as v
+from .. import validate
 from ..acuity import bar_width_um_from_px, period_um_from_cpd
 from ..errors import ConfigError
 from ..grid import RetinalGrid
 from ..system import Eye
-from .base import DEFAULT_SUPERSAMPLE, Figure, _check_grid, positive, register
+from .base import DEFAULT_SUPERSAMPLE, Figure, check_grid, positive, register
 
 __all__ = ["Grating", "Checkerboard", "square_wave_box_mean"]
 
@@ -134,12 +134,14 @@ class Grating(Figure):
         super().__post_init__()
         f = object.__setattr__
         f(self, "period_um", positive(self.kind, "period_um", self.period_um))
-        f(self, "waveform", v.choice("grating.waveform", self.waveform, WAVEFORMS))
-        f(self, "phase_deg", v.number("grating.phase_deg", self.phase_deg))
+        f(self, "waveform", validate.choice("grating.waveform", self.waveform, WAVEFORMS))
+        f(self, "phase_deg", validate.number("grating.phase_deg", self.phase_deg))
         f(
             self,
             "duty_cycle",
-            v.number("grating.duty_cycle", self.duty_cycle, lo=0, hi=1, lo_open=True, hi_open=True),
+            validate.number(
+                "grating.duty_cycle", self.duty_cycle, lo=0, hi=1, lo_open=True, hi_open=True
+            ),
         )
 
     @property
@@ -198,7 +200,7 @@ class Grating(Figure):
 
     def coverage(self, grid: RetinalGrid, *, supersample: int = DEFAULT_SUPERSAMPLE) -> np.ndarray:
         """Box-averaged grating profile on ``grid``, float32 in [0, 1] (exact area average)."""
-        grid = _check_grid(grid)
+        grid = check_grid(grid)
         c = math.cos(math.radians(self.rotation_deg))
         s = math.sin(math.radians(self.rotation_deg))
         X, Y = grid.coords_um()
@@ -252,7 +254,9 @@ class Checkerboard(Figure):
     def __post_init__(self) -> None:
         super().__post_init__()
         object.__setattr__(self, "check_um", positive(self.kind, "check_um", self.check_um))
-        object.__setattr__(self, "reversal", v.boolean("checkerboard.reversal", self.reversal))
+        object.__setattr__(
+            self, "reversal", validate.boolean("checkerboard.reversal", self.reversal)
+        )
 
     def reversed(self) -> Checkerboard:
         """The pattern-reversal partner (bright and dark checks swapped)."""
@@ -263,7 +267,7 @@ class Checkerboard(Figure):
         """Checks of ``check_deg`` degrees of visual angle."""
         from ..acuity import um_per_deg_of
 
-        deg = v.number("checkerboard.check_deg", check_deg, lo=0, lo_open=True)
+        deg = validate.number("checkerboard.check_deg", check_deg, lo=0, lo_open=True)
         return cls(check_um=deg * um_per_deg_of(eye), **kwargs)
 
     def _inside(self, u: np.ndarray, w: np.ndarray) -> np.ndarray:
@@ -272,7 +276,7 @@ class Checkerboard(Figure):
 
     def coverage(self, grid: RetinalGrid, *, supersample: int = DEFAULT_SUPERSAMPLE) -> np.ndarray:
         """Checks on ``grid``, float32 in [0, 1] (exact when the rotation is a multiple of 90°)."""
-        grid = _check_grid(grid)
+        grid = check_grid(grid)
         quarter = self.rotation_deg / 90.0
         if quarter != round(quarter):
             return super().coverage(grid, supersample=supersample)

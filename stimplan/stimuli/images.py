@@ -20,11 +20,11 @@ from pathlib import Path
 
 import numpy as np
 
-from .. import _validate as v
+from .. import validate
 from ..errors import InputFileError
 from ..grid import RetinalGrid, interval_overlap
 from ..io_images import read_scalar_image
-from .base import DEFAULT_SUPERSAMPLE, Figure, _check_grid, positive, register
+from .base import DEFAULT_SUPERSAMPLE, Figure, check_grid, positive, register
 
 __all__ = ["ImageStimulus", "MAX_STIMULUS_IMAGE_PIXELS", "IMAGE_SUFFIXES"]
 
@@ -92,7 +92,7 @@ class ImageStimulus(Figure):
         path = str(self.path)
         f(self, "path", path)
         f(self, "width_um", positive(self.kind, "width_um", self.width_um))
-        f(self, "max_pixels", v.integer("image.max_pixels", self.max_pixels, lo=1))
+        f(self, "max_pixels", validate.integer("image.max_pixels", self.max_pixels, lo=1))
         if Path(path).suffix.lower() not in IMAGE_SUFFIXES:
             raise InputFileError(
                 "image.path", path, "a file ending in " + ", ".join(IMAGE_SUFFIXES)
@@ -127,7 +127,7 @@ class ImageStimulus(Figure):
 
     def coverage(self, grid: RetinalGrid, *, supersample: int = DEFAULT_SUPERSAMPLE) -> np.ndarray:
         """Area-weighted grey values on ``grid``, float32 in [0, 1] (0 outside the image)."""
-        grid = _check_grid(grid)
+        grid = check_grid(grid)
         out = np.zeros(grid.shape, dtype=np.float32)
         win = self._window(grid)
         if win is None:

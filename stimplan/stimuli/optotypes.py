@@ -35,7 +35,7 @@ from typing import Any
 
 import numpy as np
 
-from .. import _validate as v
+from .. import validate
 from ..acuity import (
     arcmin_to_um,
     mar_from_decimal,
@@ -135,7 +135,7 @@ class Optotype(Figure):
     @classmethod
     def from_mar_arcmin(cls, mar_arcmin: float, eye: Eye | float, **kwargs: Any) -> Optotype:
         """The symbol whose stroke subtends ``mar_arcmin``."""
-        mar = v.number(f"{cls.kind}.mar_arcmin", mar_arcmin, lo=0, lo_open=True)
+        mar = validate.number(f"{cls.kind}.mar_arcmin", mar_arcmin, lo=0, lo_open=True)
         return cls(height_um=UNITS * arcmin_to_um(mar, eye), **kwargs)
 
     @classmethod

@@ -15,7 +15,7 @@ from typing import Any
 from ..errors import ConfigError
 from ..system import Eye
 from . import compose, gratings, images, optotypes, shapes  # noqa: F401 - they register kinds
-from .base import STIMULUS_KINDS, Stimulus
+from .base import STIMULUS_KINDS, Stimulus, build_stimulus
 
 __all__ = ["stimulus_from_dict", "stimulus_kinds", "from_dict"]
 
@@ -66,30 +66,7 @@ def stimulus_from_dict(
     >>> round(s.height_um, 1)
     240.0
     """
-    if not isinstance(kind, str) or kind not in STIMULUS_KINDS:
-        raise ConfigError("stimulus.kind", kind, "one of " + ", ".join(STIMULUS_KINDS))
-    if params is None:
-        params = {}
-    if not isinstance(params, Mapping):
-        raise ConfigError(f"{kind}", params, "a table of keyword parameters")
-    cls = STIMULUS_KINDS[kind]
-    try:
-        return cls.from_params(dict(params), eye=eye, pitch_um=pitch_um)
-    except TypeError as exc:  # a required parameter is missing
-        import dataclasses
-
-        required = [
-            f.name
-            for f in dataclasses.fields(cls)
-            if f.default is dataclasses.MISSING and f.default_factory is dataclasses.MISSING
-        ]
-        missing = [k for k in required if k not in params]
-        raise ConfigError(
-            f"{kind}.{missing[0] if missing else 'parameters'}",
-            None,
-            "the parameters " + ", ".join(required) if required else "valid parameters",
-            str(exc),
-        ) from None
+    return build_stimulus(kind, params, eye=eye, pitch_um=pitch_um)
 
 
 def from_dict(

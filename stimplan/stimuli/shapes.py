@@ -6,10 +6,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .. import _validate as v
+from .. import validate
 from ..errors import ConfigError
 from ..grid import RetinalGrid
-from .base import Figure, Stimulus, _check_grid, positive, register
+from .base import Figure, Stimulus, check_grid, positive, register
 
 __all__ = ["Spot", "Bar", "Annulus", "Flash", "Blank"]
 
@@ -96,7 +96,7 @@ class Annulus(Figure):
 
     def __post_init__(self) -> None:
         super().__post_init__()
-        inner = v.number("annulus.inner_diameter_um", self.inner_diameter_um, lo=0.0)
+        inner = validate.number("annulus.inner_diameter_um", self.inner_diameter_um, lo=0.0)
         outer = positive(self.kind, "outer_diameter_um", self.outer_diameter_um)
         if outer <= inner:
             raise ConfigError(
@@ -131,10 +131,12 @@ class Flash(Stimulus):
     level: float = 1.0
 
     def __post_init__(self) -> None:
-        object.__setattr__(self, "level", v.number("flash.level", self.level, lo=0.0, hi=1.0))
+        object.__setattr__(
+            self, "level", validate.number("flash.level", self.level, lo=0.0, hi=1.0)
+        )
 
     def render(self, grid: RetinalGrid) -> np.ndarray:
-        grid = _check_grid(grid)
+        grid = check_grid(grid)
         return np.full(grid.shape, self.level, dtype=np.float32)
 
 
@@ -146,5 +148,5 @@ class Blank(Stimulus):
     kind = "blank"
 
     def render(self, grid: RetinalGrid) -> np.ndarray:
-        grid = _check_grid(grid)
+        grid = check_grid(grid)
         return np.zeros(grid.shape, dtype=np.float32)

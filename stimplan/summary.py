@@ -1,0 +1,146 @@
+"""One summary of a plan: the `check --json` figures and the table the CLI prints.
+
+Every exposure figure travels with the cautions text.
+"""
+
+from __future__ import annotations
+
+import sys
+
+from . import __version__
+from .cautions import CAUTIONS
+from .export import json_safe
+
+__all__ = ["stimulus_rows", "plan_summary", "print_table"]
+
+
+def stimulus_rows(plan) -> list[dict]:
+    """One summary dict per distinct stimulus (the `check --json` entries)."""
+    rows = []
+    for sp in plan.holograms:
+        frames = [f for f in plan.frames if f.hologram_index == sp.hologram_index and f.lit]
+        names = sorted({f.stimulus for f in frames}) or [sp.name]
+        power = frames[0].power_mw if frames else 0.0
+        h, m = sp.hologram_figures, sp.mask_figures
+        exp = plan.stimulus_exposure.get(sp.hologram_index)
+        first = frames[0] if frames else None
+        rows.append(
+            {
+                "name": names[0],
+                "names": names,
+                "hologram_index": sp.hologram_index,
+                "laser_power_mw": power,
+                "mask_laser_power_mw": None if first is None else plan.mask_power_for(first),
+                "efficiency": sp.metrics.efficiency,
+                "uniformity": sp.metrics.uniformity,
+                "on_pixel_power_uw": {
+                    "hologram": None if h is None else h.on_power_uw * power,
+                    "mask": None if m is None else m.on_power_uw * power,
+                },
+                "on_pixel_cv": None if h is None else h.on_cv,
+                "exposure_ratio": None if exp is None else exp.worst_ratio,
+                "verdict": None if exp is None else exp.verdict,
+            }
+        )
+    return rows
+
+
+def plan_summary(plan) -> dict:
+    """Everything `check --json` prints."""
+    e = plan.exposure
+    out = {
+        "title": plan.spec.title,
+        "stimplan_version": __version__,
+        "seed": plan.seed,
+        "n_frames": len(plan.frames),
+        "duration_ms": plan.duration_ms,
+        "stimuli": stimulus_rows(plan),
+        "exposure": {
+            "verdict": plan.verdict,
+            "worst_ratio": 0.0 if e is None else e.worst_ratio,
+            "found_ratio": None if e is None else e.found_ratio,
+            "protocol_ratio": None if e is None else e.protocol_ratio,
+            "binding_limit": None if e is None else e.binding_limit,
+            "binding": None if e is None else e.binding_text(),
+            "binding_rule": None if e is None else e.binding_rule,
+            "margin": None if e is None else e.margin,
+            "edition": None if e is None else e.edition,
+            "protocol": None
+            if e is None or e.protocol is None
+            else {"worst_ratio": e.protocol.worst_ratio, "verdict": e.protocol.verdict},
+            "mask_worst_ratio": None
+            if plan.mask_exposure is None
+            else plan.mask_exposure.worst_ratio,
+            "mask_equal_irradiance_worst_ratio": None
+            if plan.mask_exposure_equal_irradiance is None
+            else plan.mask_exposure_equal_irradiance.worst_ratio,
+            "max_peak_frame_power_mw": {
+                "hologram": plan.max_laser_power_mw("hologram"),
+                "mask": plan.max_laser_power_mw("mask"),
+            },
+        },
+        "cautions": CAUTIONS,
+    }
+    return json_safe(out)
+
+
+def _num(x):
+    return float(x) if isinstance(x, str) else x
+
+
+def _fmt(x, spec=".3g") -> str:
+    return "-" if x is None else format(x, spec)
+
+
+def print_table(plan, file=None) -> None:
+    """The summary table of a plan, with the cautions."""
+    file = sys.stdout if file is None else file
+
+    s = plan_summary(plan)
+    print(f"{s['title']}  ({s['n_frames']} frames, {s['duration_ms'] / 1e3:.1f} s)", file=file)
+    head = (
+        f"{'stimulus':<22}{'laser mW':>9}{'effic.':>8}{'ON µW holo':>12}{'ON µW mask':>12}"
+        f"{'ON CV':>8}{'exposure':>10}  verdict"
+    )
+    print(head, file=file)
+    print("-" * len(head), file=file)
+    for r in s["stimuli"]:
+        print(
+            f"{r['name'][:21]:<22}{r['laser_power_mw']:>9.3g}{r['efficiency']:>8.3f}"
+            f"{_fmt(r['on_pixel_power_uw']['hologram']):>12}"
+            f"{_fmt(r['on_pixel_power_uw']['mask']):>12}{_fmt(r['on_pixel_cv'], '.3f'):>8}"
+            f"{_fmt(r['exposure_ratio']):>10}  {r['verdict'] or '-'}",
+            file=file,
+        )
+    e = s["exposure"]
+    mp = e["max_peak_frame_power_mw"]
+    print(
+        "power planning: the mask needs "
+        + ", ".join(
+            f"{r['name']} {_fmt(r['mask_laser_power_mw'])} mW"
+            for r in s["stimuli"]
+            if r["mask_laser_power_mw"] is not None
+        )
+        + f" for the same ON-pixel irradiance; largest peak frame power within every limit: "
+        f"hologram {_fmt(_num(mp['hologram']))} mW, mask {_fmt(_num(mp['mask']))} mW",
+        file=file,
+    )
+    line = (
+        f"sequence exposure: standard {_fmt(e['worst_ratio'])} of the limit at most "
+        f"({e['binding_rule'] or '-'})"
+    )
+    if e["protocol"]:
+        line += f"; protocol cap {e['protocol']['worst_ratio']:.3g} ({e['protocol']['verdict']})"
+    line += f"; verdict: {e['verdict']}"
+    print(line, file=file)
+    if e["binding"]:
+        print(f"what binds: {e['binding']}", file=file)
+    if e["mask_equal_irradiance_worst_ratio"] is not None:
+        print(
+            f"the mask, for the same ON-pixel irradiance: "
+            f"{e['mask_equal_irradiance_worst_ratio']:.3g} of the limit",
+            file=file,
+        )
+    if e["edition"]:
+        print(f"limits: {e['edition']}", file=file)
+    print("CAUTION: " + CAUTIONS, file=file)
