@@ -20,7 +20,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 from _scenarios import header
 
 from stimplan.export import export_plan
-from stimplan.planner import plan_sequence
+from stimplan.plan import plan_sequence
 from stimplan.sequence import parse_sequence
 
 

@@ -16,7 +16,7 @@ from pathlib import Path
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 from _scenarios import drifting_grating
 
-from stimplan.planner import plan_sequence
+from stimplan.plan import plan_sequence
 from stimplan.sequence import parse_sequence
 
 

@@ -26,7 +26,7 @@ EXIT_OK, EXIT_INPUT, EXIT_EXPOSURE, EXIT_INTERNAL = 0, 1, 2, 3
 
 
 def _load_and_plan(path: str, *, quiet: bool = False):
-    from .planner import plan_sequence
+    from .plan import plan_sequence
     from .sequence import load_sequence
 
     spec = load_sequence(path)

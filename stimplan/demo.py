@@ -61,7 +61,7 @@ def run_demo(output: str | Path, *, force: bool = False, quick: bool = False) ->
     written atomically and never replaced without ``force``.
     """
     from .export import export_plan
-    from .planner import plan_sequence
+    from .plan import plan_sequence
     from .report import write_report
     from .summary import print_table
 

@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from stimplan.planner import plan_jobs, plan_sequence
+from stimplan.plan import plan_jobs, plan_sequence
 from stimplan.reuse import (
     envelope_change,
     proposed_translations,

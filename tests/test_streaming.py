@@ -5,7 +5,7 @@ from __future__ import annotations
 import json
 
 from stimplan.export import export_plan, sha256_file
-from stimplan.planner import plan_sequence
+from stimplan.plan import plan_sequence
 from stimplan.sequence import parse_sequence
 
 from .scenarios import small_sequence

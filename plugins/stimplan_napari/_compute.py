@@ -2,7 +2,7 @@
 
 The panel's inputs become a :class:`StimulusRequest`; :func:`compute_stimulus`
 turns it into a one-step sequence on the chosen optics and plans it with
-:func:`stimplan.planner.plan_sequence`, so the panel shows exactly the
+:func:`stimplan.plan.plan_sequence`, so the panel shows exactly the
 figures the command line and the report would.
 """
 
@@ -334,7 +334,7 @@ def compute_stimulus(
         For bad input (the message names the field, the value and what is allowed).
     """
     from stimplan.errors import ConfigError
-    from stimplan.planner import REFERENCE_POWER_MW, plan_sequence
+    from stimplan.plan import REFERENCE_POWER_MW, plan_sequence
 
     spec, power = _one_step_spec(request)
     cb = None

@@ -98,7 +98,7 @@ def read_sequence(path) -> list[tuple]:
 
     Warnings (limits exceeded, a clipped beam) are shown to the user.
     """
-    from stimplan.planner import plan_sequence
+    from stimplan.plan import plan_sequence
     from stimplan.sequence import load_sequence
 
     from ._readout import announce

@@ -34,7 +34,7 @@ __all__ = [
     "export_layers",
 ]
 
-#: Metadata key of the :class:`~stimplan.planner.Plan` behind a sequence layer.
+#: Metadata key of the :class:`~stimplan.plan.Plan` behind a sequence layer.
 PLAN_KEY = "stimplan_plan"
 #: Metadata key of the :class:`~stimplan_napari._compute.StimulusResult` behind a layer.
 RESULT_KEY = "stimplan_result"
@@ -288,7 +288,7 @@ def plan_frame_maps(plan):
     Each hologram is predicted at 1 mW; frame ``k`` is its hologram's map
     times the frame's laser power.
     """
-    from stimplan.planner import REFERENCE_POWER_MW
+    from stimplan.plan import REFERENCE_POWER_MW
 
     pages = [sp.prediction.irradiance_mw_per_mm2 for sp in plan.holograms]
     idx = [f.hologram_index if f.lit else -1 for f in plan.frames]
@@ -310,7 +310,7 @@ def plan_layers(plan) -> list[tuple]:
     """
     if not plan.holograms:
         return []
-    from stimplan.planner import REFERENCE_POWER_MW
+    from stimplan.plan import REFERENCE_POWER_MW
 
     pred0 = plan.holograms[0].prediction
     peak = 0.0

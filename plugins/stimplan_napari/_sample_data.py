@@ -43,7 +43,7 @@ def demo_retina() -> list[tuple]:
 
 def _scenario(name: str) -> list[tuple]:
     from stimplan.demo import demo_spec
-    from stimplan.planner import plan_sequence
+    from stimplan.plan import plan_sequence
 
     from ._readout import announce
 

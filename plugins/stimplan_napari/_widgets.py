@@ -619,7 +619,7 @@ class SequencePanel(Container):
 
 
 def _plan_file(path: str, progress: Callable[[int, int], None]):
-    from stimplan.planner import plan_sequence
+    from stimplan.plan import plan_sequence
     from stimplan.sequence import load_sequence
 
     spec = load_sequence(path)

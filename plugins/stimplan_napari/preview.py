@@ -47,7 +47,7 @@ def preview(path: str | os.PathLike[str], close_after_load: bool = False) -> int
     import napari
     from qtpy.QtWidgets import QApplication
 
-    from stimplan.planner import plan_sequence
+    from stimplan.plan import plan_sequence
     from stimplan.sequence import load_sequence
 
     spec = load_sequence(path)

@@ -1,0 +1,278 @@
+"""What a plan holds: per-stimulus results, per-frame powers and the whole plan."""
+
+from __future__ import annotations
+
+import copy
+from dataclasses import dataclass, field
+from functools import cached_property
+
+import numpy as np
+
+from ..cautions import CAUTIONS
+from ..comparison import ProjectorFigures
+from ..errors import ConfigError
+from ..exposure import (
+    ExposureAssessment,
+)
+from ..metrics import PatternMetrics
+from .spool import (
+    Spooled,
+    spooled_value,
+)
+from .wiring import assess_frames
+
+__all__ = ["StimulusPlan", "FramePlan", "Plan"]
+
+
+class StimulusPlan:
+    """One distinct stimulus: its hologram and what it gives per mW of laser power.
+
+    Attributes
+    ----------
+    name : str
+        First sequence name of the stimulus (others may share it).
+    hologram_index : int
+        Page of the hologram stack.
+    target : Target
+    hologram : Hologram
+    prediction : RetinalPrediction
+        At :data:`REFERENCE_POWER_MW` (1 mW) of laser power.
+    metrics : PatternMetrics
+    mask_prediction : MaskPrediction
+        The amplitude mask at 1 mW.
+    on : ndarray of bool or None
+        ON implant pixels.
+    hologram_figures, mask_figures : ProjectorFigures or None
+        Per-pixel figures at 1 mW (None without an implant).
+    readout : PixelReadout or None
+        Hologram readout at 1 mW.
+    grid : RetinalGrid
+        The prediction grid.
+
+    Notes
+    -----
+    In a plan made with ``store="disk"`` the four large parts (target,
+    hologram, prediction, mask prediction) live in files of the plan's spool
+    folder and are read back on each use, so a long sequence holds only the
+    small figures in memory.
+    """
+
+    def __init__(
+        self,
+        name: str,
+        hologram_index: int,
+        target,
+        hologram,
+        prediction,
+        metrics: PatternMetrics,
+        mask_prediction,
+        on: np.ndarray | None = None,
+        hologram_figures: ProjectorFigures | None = None,
+        mask_figures: ProjectorFigures | None = None,
+        readout: object | None = None,
+    ) -> None:
+        self.name = name
+        self.hologram_index = hologram_index
+        self.grid = prediction.grid  # the prediction grid, kept when the maps are spooled
+        self.prediction_account = prediction.account
+        self._parts = {
+            "target": target,
+            "hologram": hologram,
+            "prediction": prediction,
+            "mask_prediction": mask_prediction,
+        }
+        self.metrics = metrics
+        self.on = on
+        self.hologram_figures = hologram_figures
+        self.mask_figures = mask_figures
+        self.readout = readout
+
+    target = property(lambda self: spooled_value(self._parts["target"]), doc="The Target.")
+    hologram = property(lambda self: spooled_value(self._parts["hologram"]), doc="The Hologram.")
+    prediction = property(
+        lambda self: spooled_value(self._parts["prediction"]), doc="RetinalPrediction at 1 mW."
+    )
+    mask_prediction = property(
+        lambda self: spooled_value(self._parts["mask_prediction"]), doc="MaskPrediction at 1 mW."
+    )
+
+    @property
+    def spooled(self) -> bool:
+        return any(isinstance(v, Spooled) for v in self._parts.values())
+
+    def spool_to(self, folder: str) -> StimulusPlan:
+        """This plan with its large parts written to files in ``folder``."""
+        out = copy.copy(self)
+        out._parts = {
+            k: (
+                v
+                if isinstance(v, Spooled)
+                else Spooled.write(v, folder, f"{self.hologram_index:05d}-{k}.pkl")
+            )
+            for k, v in self._parts.items()
+        }
+        return out
+
+    def on_irradiance_per_mw(self, basis: str = "mean") -> float:
+        """ON-pixel retinal irradiance per mW of laser power ("mean" or "min")."""
+        if self.readout is None or self.on is None:
+            raise ConfigError("irradiance_mw_per_mm2", None, "an implant to define ON pixels")
+        irr = np.asarray(self.readout.mean_irradiance_mw_per_mm2)[self.on]
+        if basis == "min":
+            return float(irr.min())
+        return float(self.hologram_figures.on_irradiance_mw_per_mm2)
+
+    def mask_on_irradiance_per_mw(self, basis: str = "mean") -> float:
+        """The same for the amplitude mask."""
+        if self.mask_figures is None:
+            return float("nan")
+        return float(self.mask_figures.on_irradiance_mw_per_mm2)
+
+
+@dataclass(frozen=True)
+class FramePlan:
+    """One frame of the timeline, resolved.
+
+    ``stimulus`` is ``None`` and ``hologram_index`` is -1 for a dark pause.
+    """
+
+    index: int
+    start_ms: float
+    duration_ms: float
+    pulse_ms: float
+    rate_hz: float
+    power_mw: float
+    stimulus: str | None
+    hologram_index: int
+    pulses: tuple = field(repr=False, default=())
+    target_irradiance_mw_per_mm2: float | None = None
+    on_pixel_power_uw: float | None = None
+    mask_on_pixel_power_uw: float | None = None
+
+    @property
+    def lit(self) -> bool:
+        return self.stimulus is not None and self.power_mw > 0
+
+
+@dataclass(frozen=True, eq=False)
+class Plan:
+    """A planned sequence.
+
+    Attributes
+    ----------
+    spec : SequenceSpec
+    stimuli : dict of str to StimulusPlan
+        By sequence name (names of identical stimuli share one plan).
+    holograms : tuple of StimulusPlan
+        The distinct holograms in stack order.
+    frames : tuple of FramePlan
+    exposure : ExposureAssessment or None
+        The hologram sequence against the limits (None if nothing is lit).
+    mask_exposure : ExposureAssessment or None
+        The same timeline through the amplitude mask at the same powers;
+        computed on first use.
+    stimulus_exposure : dict of int to ExposureAssessment
+        Each hologram's frames alone (by hologram index); computed on first use.
+    """
+
+    spec: object
+    stimuli: dict[str, StimulusPlan]
+    holograms: tuple[StimulusPlan, ...]
+    frames: tuple[FramePlan, ...]
+    exposure: ExposureAssessment | None
+    cautions: str = CAUTIONS
+    spool: object = field(default=None, repr=False)
+    timings_s: dict = field(default_factory=dict)
+    #: Largest disc powers of the plan's maps, shared by its exposure assessments.
+    maxima_cache: dict = field(default_factory=dict, repr=False)
+
+    @cached_property
+    def mask_exposure(self) -> ExposureAssessment | None:
+        """The timeline through the amplitude mask at the same laser powers."""
+        wl = self.spec.system.illumination.wavelength_nm
+        return assess_frames(
+            self.frames, self.stimuli, "mask", wl, self.spec, cache=self.maxima_cache
+        )
+
+    @cached_property
+    def mask_exposure_equal_irradiance(self) -> ExposureAssessment | None:
+        """The timeline through the amplitude mask at the laser powers that give the ON
+        pixels the same irradiance as the holograms (:meth:`mask_power_for`); None
+        without an implant."""
+        if self.spec.implant is None:
+            return None
+        wl = self.spec.system.illumination.wavelength_nm
+        return assess_frames(
+            self.frames,
+            self.stimuli,
+            "mask",
+            wl,
+            self.spec,
+            power_of=self.mask_power_for,
+            cache=self.maxima_cache,
+        )
+
+    @cached_property
+    def stimulus_exposure(self) -> dict[int, ExposureAssessment]:
+        """Exposure of each hologram's frames on their own, by hologram index."""
+        if len(self.holograms) == 1:
+            only = self.holograms[0].hologram_index
+            return {} if self.exposure is None else {only: self.exposure}
+        wl = self.spec.system.illumination.wavelength_nm
+        out = {}
+        for sp in self.holograms:
+            own = [f for f in self.frames if f.hologram_index == sp.hologram_index]
+            a = assess_frames(own, self.stimuli, "hologram", wl, self.spec, cache=self.maxima_cache)
+            if a is not None:
+                out[sp.hologram_index] = a
+        return out
+
+    @property
+    def seed(self) -> int:
+        return int(self.spec.seed)
+
+    @property
+    def verdict(self) -> str:
+        return "within" if self.exposure is None else self.exposure.verdict
+
+    @property
+    def duration_ms(self) -> float:
+        if not self.frames:
+            return 0.0
+        last = self.frames[-1]
+        return last.start_ms + last.duration_ms
+
+    def frames_of(self, name: str) -> list[FramePlan]:
+        return [f for f in self.frames if f.stimulus == name]
+
+    def max_laser_power_mw(self, which: str = "hologram") -> float:
+        """Largest peak frame power (mW) when every frame's power is scaled alike and every
+        rule, and the protocol cap, stays within its limit.
+
+        Parameters
+        ----------
+        which : {"hologram", "mask"}
+            The holograms, or the amplitude mask shown at the same powers.
+        """
+        a = self.exposure if which == "hologram" else self.mask_exposure
+        if a is None:
+            return float("inf")
+        worst = max(a.worst_ratio, 0.0)
+        if a.protocol is not None:
+            worst = max(worst, a.protocol.worst_ratio)
+        peak = max((f.power_mw for f in self.frames if f.lit), default=0.0)
+        return float("inf") if worst == 0 else peak / worst
+
+    def mask_power_for(self, frame: FramePlan) -> float | None:
+        """Laser power the amplitude mask needs for the frame's ON-pixel irradiance, mW.
+
+        For a frame planned by target irradiance this is the mask's power for the
+        same target; for a frame given in mW it is the power at which the mask
+        gives the ON pixels what the hologram gives them.
+        """
+        sp = self.stimuli.get(frame.stimulus) if frame.stimulus else None
+        if sp is None or sp.mask_figures is None or not frame.lit:
+            return None
+        h = sp.hologram_figures.on_irradiance_mw_per_mm2
+        m = sp.mask_figures.on_irradiance_mw_per_mm2
+        return None if m <= 0 else frame.power_mw * h / m

@@ -1,0 +1,112 @@
+"""The exposure of a plan's timeline: its frames as lazy maps for the exposure assessment."""
+
+from __future__ import annotations
+
+from dataclasses import replace
+
+import numpy as np
+
+from ..exposure import (
+    EyeModel,
+    Frame,
+    assess_sequence,
+    retinal_image_diameter_um,
+)
+from ..grid import RetinalGrid
+from ..holography.propagation import with_higher_orders
+from .spool import (
+    REFERENCE_POWER_MW,
+)
+
+__all__ = ["assess_frames", "orders_margin", "with_orders_note"]
+
+
+def assess_frames(frames, plans, which: str, wavelength_nm: float, spec, power_of=None, cache=None):
+    """Exposure of the timeline.
+
+    Each hologram is one (lazily read) map at 1 mW; every pulse carries its
+    frame's laser power (or ``power_of(frame)``) as its scale, so frames of one
+    hologram at any powers share one map and the maps are read one at a time.
+    """
+    pulses_of: dict[int, list] = {}
+    by_index = {p.hologram_index: p for p in plans.values()}
+    for fr in frames:
+        if not fr.lit or not fr.pulses:
+            continue
+        power = fr.power_mw if power_of is None else power_of(fr)
+        if power is None:
+            continue
+        k = np.float64(power / REFERENCE_POWER_MW)
+        pulses_of.setdefault(fr.hologram_index, []).extend(
+            replace(p, scale=p.scale * float(k)) for p in fr.pulses
+        )
+    if not pulses_of:
+        return None
+    xframes = []
+    margin = 0
+    for hi, pulses in pulses_of.items():
+        sp = by_index[hi]
+        grid = sp.grid
+        if which == "hologram":
+            margin = orders_margin(grid)
+            grid = RetinalGrid(
+                (grid.rows + 2 * margin, grid.cols + 2 * margin), grid.pitch_x_um, grid.pitch_y_um
+            )
+
+        def load(sp=sp, margin=margin):
+            if which == "mask":
+                return sp.mask_prediction.irradiance_mw_per_mm2
+            pred = sp.prediction
+            return with_higher_orders(
+                pred.irradiance_mw_per_mm2, pred.grid, spec.system.slm.fill_factor, margin
+            )[0]
+
+        xframes.append(
+            Frame(
+                load, tuple(sorted(pulses, key=lambda p: p.start_ms)), sp.name, key=f"{which}-{hi}"
+            )
+        )
+    # the limits go to the retina with the transmission the prediction used, so it cancels
+    eye = EyeModel(
+        transmission=spec.system.eye.transmission,
+        source="f = 17 mm; τ = the planned eye's transmission, as in the prediction",
+    )
+    return assess_sequence(
+        xframes,
+        grid,
+        wavelength_nm,
+        eye=eye,
+        protocol=spec.protocol,
+        subject=spec.system.eye.name,
+        maxima_cache=cache,
+    )
+
+
+def orders_margin(grid) -> int:
+    """Samples of neighbouring diffraction orders to add around a map for the exposure.
+
+    The largest acceptance disc (alpha = 100 mrad through the reference eye) centred
+    anywhere on the predicted field must see the light next to it; at most one
+    whole order on each side.
+    """
+    radius_um = retinal_image_diameter_um(100.0) / 2.0
+    m = int(np.ceil(radius_um / min(grid.pitch_x_um, grid.pitch_y_um)))
+    return min(m, grid.rows, grid.cols)
+
+
+def with_orders_note(assessment, holograms):
+    """Say how the light of the higher diffraction orders is counted."""
+    if assessment is None or not holograms:
+        return assessment
+    frac = max(
+        sp.prediction_account.higher_orders_mw / sp.prediction_account.input_mw for sp in holograms
+    )
+    g = holograms[0].grid
+    margin_um = orders_margin(g) * min(g.pitch_x_um, g.pitch_y_um)
+    note = (
+        f"Light diffracted into higher orders of the SLM pixel grid (up to {frac:.1%} of the "
+        f"laser power here) is included as the neighbouring orders within {margin_um:.0f} um "
+        "of the predicted field (the map wrapped, times the pixel envelope); orders further "
+        "out are not evaluated."
+    )
+    return replace(assessment, notes=(*assessment.notes, note))
