@@ -387,12 +387,12 @@ def test_bad_sizing_is_reported():
 def test_compiled_quadrant_areas_equal_the_formula(rng):
     # Source: Green's theorem as written in polygon_quadrant_area (itself checked against
     # quadrature above); the compiled grid form used by the rasteriser must agree.
-    from stimplan.implant import _polygon_quadrant_grid
+    from stimplan.implant.geometry import polygon_quadrant_grid
 
     ang = np.linspace(0, 2 * np.pi, 7)[:-1] + 0.3
     verts = np.stack([20 * np.cos(ang), 20 * np.sin(ang)], axis=1)
     xr = rng.uniform(-30, 30, (5, 9))
     yr = rng.uniform(-30, 30, (5, 8))
-    got = _polygon_quadrant_grid(verts, xr, yr)
+    got = polygon_quadrant_grid(verts, xr, yr)
     want = polygon_quadrant_area(verts, xr[:, None, :], yr[:, :, None])
     np.testing.assert_allclose(got, want, rtol=1e-12, atol=1e-9)

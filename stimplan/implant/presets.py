@@ -1,0 +1,87 @@
+"""Implant presets with the layout rule of each."""
+
+from __future__ import annotations
+
+import dataclasses
+from typing import Any
+
+from ..errors import ConfigError
+from .layout import (
+    Implant,
+)
+
+__all__ = ["IMPLANT_PRESETS", "implant_names", "implant_preset"]
+
+
+IMPLANT_PRESETS: dict[str, dict[str, Any]] = {
+    # Demo: a rat array about 1.2 mm across (11 rings: 397 pixels, 1265 µm corner to
+    # corner) of 55 µm hexagonal pixels; 60 % active area and a 5 µm trench are demo
+    # values. Pixel pitches of 100 to 20 µm have been built (Mathieson 2012; Ho 2019).
+    "rat_55um": dict(
+        pitch_um=55.0,
+        layout="hex",
+        outline="hexagon",
+        rings=11,
+        active_shape="hexagon",
+        active_fraction=0.6,
+        trench_um=5.0,
+        name="rat_55um",
+    ),
+    # A 2 × 2 mm array of 100 µm hexagonal pixels (the clinical device of Palanker
+    # et al. 2020 has 378 pixels; here every cell that fits in the 2 mm square is
+    # kept, which gives more). Active fraction and trench are demo values.
+    "human_100um": dict(
+        pitch_um=100.0,
+        layout="hex",
+        outline="square",
+        width_um=2000.0,
+        pixel_inclusion="cell",
+        active_shape="hexagon",
+        active_fraction=0.6,
+        trench_um=5.0,
+        name="human_100um",
+    ),
+}
+
+
+def implant_names() -> tuple[str, ...]:
+    """Names of the implant presets."""
+    return tuple(IMPLANT_PRESETS)
+
+
+def implant_preset(name: str, **overrides: Any) -> Implant:
+    """An implant preset, optionally with some fields replaced.
+
+    Parameters
+    ----------
+    name : {"rat_55um", "human_100um"}
+        The preset.
+    **overrides
+        Any :class:`Implant` field, e.g. ``center_x_um=200.0``. Size fields
+        replace the preset's sizing (``rings`` replaces ``diameter_um`` and
+        vice versa); likewise ``active_diameter_um`` replaces
+        ``active_fraction``.
+
+    Returns
+    -------
+    Implant
+    """
+    if name not in IMPLANT_PRESETS:
+        raise ConfigError(
+            "implant.preset", name, "one of " + ", ".join(repr(n) for n in IMPLANT_PRESETS)
+        )
+    known = {f.name for f in dataclasses.fields(Implant)}
+    for k in overrides:
+        if k not in known:
+            raise ConfigError(f"implant.{k}", overrides[k], "a field of Implant")
+    params = dict(IMPLANT_PRESETS[name])
+    size_keys = {"diameter_um", "width_um", "height_um", "rows", "cols", "rings"}
+    if size_keys & set(overrides):
+        for k in size_keys:
+            params.pop(k, None)
+    if "active_diameter_um" in overrides:
+        params.pop("active_fraction", None)
+    if "active_fraction" in overrides:
+        params.pop("active_diameter_um", None)
+    params.update(overrides)
+    return Implant(**params)
