@@ -149,11 +149,6 @@ class SLM:
     def height_mm(self) -> float:
         return self.pixels_y * self.pitch_um * 1e-3
 
-    @property
-    def aperture_um(self) -> float:
-        """Side of the square pixel aperture, micrometres."""
-        return self.pitch_um * math.sqrt(self.fill_factor)
-
     def pixel_coords_mm(self) -> tuple[np.ndarray, np.ndarray]:
         """Broadcastable ``(X, Y)`` of pixel centres in mm (y up), origin at the centre."""
         x = (np.arange(self.pixels_x) - self.pixels_x / 2 + 0.5) * self.pitch_um * 1e-3
@@ -353,12 +348,6 @@ class Eye:
             "transmission",
             validate.number("eye.transmission", self.transmission, lo=0, hi=1, lo_open=True),
         )
-
-    @classmethod
-    def from_focal_length(cls, focal_length_mm: float, **kwargs) -> Eye:
-        """An eye given its effective focal length in mm instead of µm/deg."""
-        fl = validate.number("eye.focal_length_mm", focal_length_mm, lo=0, lo_open=True)
-        return cls(um_per_deg=fl * 1e3 * math.pi / 180.0, **kwargs)
 
     @property
     def focal_length_mm(self) -> float:

@@ -61,12 +61,6 @@ class ImplantRaster:
     def n_pixels(self) -> int:
         return self.matrix.shape[0]
 
-    def pixel_samples(self, index: int) -> tuple[np.ndarray, np.ndarray]:
-        """``(flat sample indices, coverage fractions)`` of pixel ``index``."""
-        i = validate.integer("pixel", index, lo=0, hi=self.n_pixels - 1)
-        a, b = self.matrix.indptr[i], self.matrix.indptr[i + 1]
-        return self.matrix.indices[a:b], self.matrix.data[a:b]
-
     @cached_property
     def row_sums(self) -> np.ndarray:
         """Covered samples of each pixel (sum of its coverage fractions), float64."""

@@ -242,9 +242,6 @@ class Plan:
         last = self.frames[-1]
         return last.start_ms + last.duration_ms
 
-    def frames_of(self, name: str) -> list[FramePlan]:
-        return [f for f in self.frames if f.stimulus == name]
-
     def max_laser_power_mw(self, which: str = "hologram") -> float:
         """Largest peak frame power (mW) when every frame's power is scaled alike and every
         rule, and the protocol cap, stays within its limit.
