@@ -22,6 +22,8 @@ from stimplan.cautions import CAUTION_SHORT, CAUTIONS, EDITION
 from stimplan.errors import ConfigError
 from stimplan.grid import RetinalGrid
 
+from .test_exposure_bounds import subsampled_disc_mm2
+
 # Cornea -> retina, REFERENCES.md: 7 mm limiting aperture [pub], f_eye = 17 mm
 # for the human eye, ocular transmission about 0.8 at 880-905 nm [mem].
 A7_M2 = math.pi * (3.5e-3) ** 2
@@ -476,15 +478,6 @@ def test_memory_does_not_grow_with_the_number_of_frames(tmp_path):
     assert many < 64 * grid.rows * grid.cols * 4  # a few padded FFTs, not one per frame
 
 
-def _disc_kernel_mm2(d_um, p, s=16):
-    # area of each cell inside the disc, by s x s subsampling of every cell (mm^2)
-    r = d_um / 2
-    h = int(math.ceil(r / p + 0.5))
-    u = ((np.arange((2 * h + 1) * s) + 0.5) / s - h - 0.5) * p
-    inside = (u[:, None] ** 2 + u[None, :] ** 2) <= r * r
-    return inside.reshape(2 * h + 1, s, 2 * h + 1, s).mean(axis=(1, 3)) * p * p * 1e-6
-
-
 def test_a_two_map_sequence_against_a_direct_evaluation_at_every_place():
     # The reference evaluates, at every sample centre and on a grid of angles, the
     # timeline of that place (each pulse carrying its map's disc power there) with the
@@ -502,7 +495,7 @@ def test_a_two_map_sequence_against_a_direct_evaluation_at_every_place():
     got = ex.assess_sequence([ex.Frame(m1, p1), ex.Frame(m2, p2)], grid, 880.0)
     brute = 0.0
     for a in np.geomspace(1.5, 100.0, 14):
-        k = _disc_kernel_mm2(a * F_EYE_MM, p)
+        k = subsampled_disc_mm2(a * F_EYE_MM, p)
         d1 = correlate(m1.astype(np.float64), k, mode="same", method="direct")
         d2 = correlate(m2.astype(np.float64), k, mode="same", method="direct")
         for i in range(n):

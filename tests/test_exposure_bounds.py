@@ -20,7 +20,7 @@ A7 = math.pi * 0.0035**2  # Source: ICNIRP 2013, 7 mm limiting aperture
 F_EYE_MM = 17.0  # common practice: the laser-safety reference eye
 
 
-def _disc(d_um, p, s=16):
+def subsampled_disc_mm2(d_um, p, s=16):
     # area of each cell inside the disc, by s x s subsampling of every cell (mm^2)
     r = d_um / 2
     h = int(math.ceil(r / p + 0.5))
@@ -33,7 +33,7 @@ def _disc(d_um, p, s=16):
 def _brute(irr, p, duration_s, lam=880.0):
     best = 0.0
     for a in np.geomspace(1.5, 100.0, 240):
-        k = _disc(a * F_EYE_MM, p)
+        k = subsampled_disc_mm2(a * F_EYE_MM, p)
         pm = correlate(irr.astype(np.float64), k, mode="same", method="fft")
         lim = ex.corneal_mpe(lam, duration_s, a).radiant_exposure_j_per_m2 * A7 * 1e3
         best = max(best, pm.max() * duration_s / lim)

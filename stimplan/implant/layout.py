@@ -16,11 +16,6 @@ from ..errors import ConfigError
 from ..grid import RetinalGrid
 from ..system import Eye
 from .checks import (
-    ACTIVE_SHAPES,
-    INCLUSIONS,
-    LAYOUTS,
-    MAX_IMPLANT_PIXELS,
-    OUTLINES,
     REGIONS,
     check_fields,
 )
@@ -32,15 +27,7 @@ from .geometry import (
 from .lattice import lattice_um
 from .raster import ImplantRaster, PixelReadout, pixel_readout, rasterize
 
-__all__ = [
-    "LAYOUTS",
-    "OUTLINES",
-    "ACTIVE_SHAPES",
-    "INCLUSIONS",
-    "REGIONS",
-    "MAX_IMPLANT_PIXELS",
-    "Implant",
-]
+__all__ = ["Implant"]
 
 
 @dataclass(frozen=True, kw_only=True)
