@@ -16,12 +16,11 @@ import tempfile
 import time
 from pathlib import Path
 
-sys.path.insert(0, str(Path(__file__).resolve().parent))
-from _scenarios import header
-
+sys.path.insert(0, str(Path(__file__).resolve().parents[1]))  # the shared scenarios in tests/
 from stimplan.export import export_plan
 from stimplan.plan import plan_sequence
 from stimplan.sequence import parse_sequence
+from tests.scenarios import header
 
 
 def sequence_text(n: int, phases: int, cycles: int) -> str:

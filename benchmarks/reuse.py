@@ -13,11 +13,10 @@ import sys
 import time
 from pathlib import Path
 
-sys.path.insert(0, str(Path(__file__).resolve().parent))
-from _scenarios import drifting_grating
-
+sys.path.insert(0, str(Path(__file__).resolve().parents[1]))  # the shared scenarios in tests/
 from stimplan.plan import plan_sequence
 from stimplan.sequence import parse_sequence
+from tests.scenarios import drifting_grating
 
 
 def main(argv=None) -> None:

@@ -1,15 +1,22 @@
-"""Small sequence files for the tests (256² SLM, rat eye, 55 µm array; demo numbers)."""
+"""Sequence texts of our own for the tests and the benchmarks (rat eye, 55 µm array).
+
+One builder, :func:`header`, writes the optics, eye, implant and hologram
+sections; the scenarios add their stimuli and steps. The benchmarks import
+this module too.
+"""
 
 from __future__ import annotations
 
-SMALL = """
+__all__ = ["header", "small_sequence", "gui_sequence", "drifting_grating"]
+
+HEADER = """
 format = "stimplan-sequence/1"
-title = "small test session"
-seed = 3
+title = "{title}"
+seed = {seed}
 
 [optics.slm]
-pixels_x = 256
-pixels_y = 256
+pixels_x = {n}
+pixels_y = {n}
 pitch_um = 8.0
 fill_factor = 0.93
 phase_levels = 256
@@ -18,7 +25,7 @@ phase_levels = 256
 wavelength_nm = 880
 power_mw = 2.0
 profile = "gaussian"
-waist_mm = 0.6
+waist_mm = {waist}
 
 [optics.relay]
 magnification = 0.2
@@ -31,9 +38,39 @@ preset = "rat_55um"
 
 [hologram]
 method = "mraf"
-iterations = 30
-initial = "lens"
+iterations = {iterations}
+"""
 
+
+def header(
+    n: int,
+    *,
+    title: str,
+    seed: int = 1,
+    waist_mm: float | None = None,
+    iterations: int = 40,
+    aware: bool | None = False,
+    initial: str | None = "lens",
+) -> str:
+    """The sections up to ``[hologram]`` for an ``n x n`` SLM of 8 µm pixels.
+
+    ``waist_mm`` defaults to the SLM width / 3.5 (the beam fills the SLM);
+    ``aware`` and ``initial`` are left out of the file when None.
+    """
+    waist = n * 8e-3 / 3.5 if waist_mm is None else waist_mm
+    text = HEADER.format(n=n, title=title, seed=seed, waist=waist, iterations=iterations)
+    if initial is not None:
+        text += f'initial = "{initial}"\n'
+    if aware is not None:
+        text += f"implant_aware = {str(aware).lower()}\n"
+    return text
+
+
+def small_sequence(irradiance: float = 1.0, spot_power: float = 1.5) -> str:
+    """A 256² SLM, a grating at a target irradiance and a spot at a laser power."""
+    return (
+        header(256, title="small test session", seed=3, waist_mm=0.6, iterations=30, aware=None)
+        + f"""
 [stimuli.bars]
 kind = "grating"
 bar_width_px = 2
@@ -58,7 +95,67 @@ pulse_ms = 5
 rate_hz = 10
 power_mw = {spot_power}
 """
+    )
 
 
-def small_sequence(irradiance: float = 1.0, spot_power: float = 1.5) -> str:
-    return SMALL.format(irradiance=irradiance, spot_power=spot_power)
+def gui_sequence(power: float, limits: str = "") -> str:
+    """The rat optics on a 128-pixel SLM (same field, coarser sampling), two stimuli and
+    dark pauses; ``limits`` is an optional ``[limits]`` section."""
+    return (
+        header(
+            128, title="GUI check, small rat array", seed=3, iterations=12, aware=True, initial=None
+        )
+        + limits
+        + f"""
+[stimuli.bars]
+kind = "grating"
+bar_width_px = 2
+
+[stimuli.dot]
+kind = "spot"
+diameter_um = 400
+
+[[steps]]
+stimulus = "bars"
+duration_ms = 200
+pulse_ms = 10
+rate_hz = 20
+power_mw = {power}
+blank_after_ms = 100
+
+[[steps]]
+stimulus = "dot"
+duration_ms = 100
+pulse_ms = 10
+rate_hz = 20
+power_mw = {power}
+repeat = 2
+blank_after_ms = 50
+"""
+    )
+
+
+def drifting_grating(n: int, frames: int, *, period_um: float = 220.0) -> str:
+    """A square grating drifting through one period in ``frames`` steps (image domain)."""
+    parts = [header(n, title=f"drifting grating, {frames} frames")]
+    for k in range(frames):
+        parts.append(
+            f"""
+[stimuli.drift_{k:03d}]
+kind = "grating"
+period_um = {period_um}
+phase_deg = {360.0 * k / frames:.6f}
+"""
+        )
+    for k in range(frames):
+        parts.append(
+            f"""
+[[steps]]
+stimulus = "drift_{k:03d}"
+duration_ms = 100
+pulse_ms = 10
+rate_hz = 20
+power_mw = 1.0
+"""
+        )
+    return "".join(parts)

@@ -17,67 +17,9 @@ from stimplan_napari import _readout
 from stimplan_napari._io import get_export_reader, get_sequence_reader, is_sequence_file
 from stimplan_napari._layers import LAYER_NAMES, PLAN_KEY
 
+from .scenarios import gui_sequence
+
 PLUGIN = "stimplan"
-
-# Our own test scenario: the rat demo optics on a 128-pixel SLM (same field, coarser
-# sampling), two stimuli and dark pauses.
-SEQUENCE = """\
-format = "stimplan-sequence/1"
-title = "GUI check, small rat array"
-seed = 3
-
-[optics.slm]
-pixels_x = 128
-pixels_y = 128
-pitch_um = 8.0
-fill_factor = 0.93
-phase_levels = 256
-
-[optics.laser]
-wavelength_nm = 880
-power_mw = 2.0
-profile = "gaussian"
-waist_mm = 0.29
-
-[optics.relay]
-magnification = 0.2
-
-[eye]
-preset = "rat"
-
-[implant]
-preset = "rat_55um"
-
-[hologram]
-method = "mraf"
-iterations = 12
-implant_aware = true
-{limits}
-[stimuli.bars]
-kind = "grating"
-bar_width_px = 2
-
-[stimuli.dot]
-kind = "spot"
-diameter_um = 400
-
-[[steps]]
-stimulus = "bars"
-duration_ms = 200
-pulse_ms = 10
-rate_hz = 20
-power_mw = {power}
-blank_after_ms = 100
-
-[[steps]]
-stimulus = "dot"
-duration_ms = 100
-pulse_ms = 10
-rate_hz = 20
-power_mw = {power}
-repeat = 2
-blank_after_ms = 50
-"""
 
 # A protocol cap far below what the sequence delivers: the plan is "above".
 LOW_CAP = """
@@ -89,7 +31,7 @@ name = "test cap"
 
 def _write(tmp_path, name="small.toml", *, power=1.0, limits=""):
     p = tmp_path / name
-    p.write_text(SEQUENCE.format(power=power, limits=limits))
+    p.write_text(gui_sequence(power, limits))
     return p
 
 
@@ -344,9 +286,7 @@ def test_writer_refuses_over_limit_plan(tmp_path):
 def test_clipped_beam_warns(tmp_path, warnings_seen):
     # The beam at the pupil is 2 w M = 2 × 0.29 mm × 0.2 = 0.116 mm (Gaussian 1/e² diameter,
     # Source: Siegman, Lasers (1986), ch. 17), wider than a 0.1 mm pupil.
-    text = SEQUENCE.format(power=1.0, limits="").replace(
-        'preset = "rat"', 'preset = "rat"\npupil_diameter_mm = 0.1'
-    )
+    text = gui_sequence(1.0).replace('preset = "rat"', 'preset = "rat"\npupil_diameter_mm = 0.1')
     path = tmp_path / "clipped.toml"
     path.write_text(text)
     reader = get_sequence_reader(str(path))
