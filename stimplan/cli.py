@@ -19,7 +19,23 @@ from .summary import plan_summary, print_table
 
 __all__ = ["main", "build_parser", "plan_summary", "print_table"]  # the last two re-exported
 
-EXIT_OK, EXIT_INPUT, EXIT_EXPOSURE, EXIT_INTERNAL = 0, 1, 2, 3
+EXIT_OK, EXIT_INPUT, EXIT_EXPOSURE, EXIT_INTERNAL, EXIT_INTERRUPTED = 0, 1, 2, 3, 130
+
+EXIT_CODES = """exit codes:
+  0    success
+  1    invalid input, usage or environment error (unreadable or unwritable path,
+       full disk, no display)
+  2    refused: the exposure estimate is above a limit (export without --acknowledge)
+  3    internal error (a bug: please report it with --debug output)
+  130  interrupted (Ctrl-C); an interrupted export leaves no complete-looking folder"""
+
+
+class _Parser(argparse.ArgumentParser):
+    """Usage errors exit with the invalid-input code, not argparse's 2 (the refusal code)."""
+
+    def error(self, message: str):  # type: ignore[override]
+        self.print_usage(sys.stderr)
+        self.exit(EXIT_INPUT, f"{self.prog}: error: {message}\n")
 
 
 # -- shared ---------------------------------------------------------------------------
@@ -90,8 +106,10 @@ def _cmd_preview(args: argparse.Namespace) -> int:
 
 
 def build_parser() -> argparse.ArgumentParser:
-    p = argparse.ArgumentParser(
+    p = _Parser(
         prog="stimplan",
+        epilog=EXIT_CODES,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
         description="Plan phase-hologram light stimuli for photovoltaic retinal implants. "
         "Exposure figures are estimates, not a safety approval.",
     )
@@ -138,29 +156,53 @@ def build_parser() -> argparse.ArgumentParser:
     return p
 
 
+def _error_json(exc: BaseException, code: int) -> str:
+    """The JSON that ``--json`` prints for an error: the first error and every one."""
+    items = getattr(exc, "errors", None) or [exc]
+
+    def one(e: BaseException) -> dict:
+        return {
+            "key": getattr(e, "field", None),
+            "line": getattr(e, "line", None),
+            "message": str(e),
+        }
+
+    return json.dumps(
+        {"error": one(items[0]), "errors": [one(e) for e in items], "exit_code": code}, indent=1
+    )
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
+    as_json = bool(getattr(args, "json", False))
+
+    def fail(exc: BaseException, code: int, text: str) -> int:
+        if as_json:
+            print(_error_json(exc, code))
+        print(text, file=sys.stderr)
+        return code
+
     try:
         return int(args.func(args) or 0)
     except ExposureLimitError as exc:
         if args.debug:
             raise
-        print(f"stimplan: refused: {exc}", file=sys.stderr)
-        return EXIT_EXPOSURE
+        return fail(exc, EXIT_EXPOSURE, f"stimplan: refused: {exc}")
     except StimplanError as exc:
         if args.debug:
             raise
-        print(f"stimplan: error: {_one_line(exc)}", file=sys.stderr)
-        return EXIT_INPUT
-    except KeyboardInterrupt:
-        print("stimplan: interrupted", file=sys.stderr)
-        return EXIT_INTERNAL
+        return fail(exc, EXIT_INPUT, f"stimplan: error: {_one_line(exc)}")
+    except KeyboardInterrupt as exc:
+        return fail(exc, EXIT_INTERRUPTED, "stimplan: interrupted")
+    except OSError as exc:  # the environment: unwritable, missing, full disk
+        if args.debug:
+            raise
+        return fail(exc, EXIT_INPUT, f"stimplan: error: {exc}")
     except Exception as exc:
         if args.debug:
             raise
-        print(f"stimplan: internal error: {type(exc).__name__}: {exc}", file=sys.stderr)
-        return EXIT_INTERNAL
+        return fail(exc, EXIT_INTERNAL, f"stimplan: internal error: {type(exc).__name__}: {exc}")
 
 
 def _one_line(exc: Exception) -> str:

@@ -93,3 +93,40 @@ def test_version_and_help(capsys):
             main([cmd, "--help"])
         assert info.value.code == 0
         assert "usage" in capsys.readouterr().out
+
+
+def test_usage_errors_exit_1_not_the_refusal_code(capsys):
+    # common practice: one exit-code table; 2 is kept for the exposure refusal
+    with pytest.raises(SystemExit) as ex:
+        main(["check"])
+    assert ex.value.code == 1
+    with pytest.raises(SystemExit) as ex:
+        main(["nonsense"])
+    assert ex.value.code == 1
+    with pytest.raises(SystemExit):
+        main(["--help"])
+    assert "130" in capsys.readouterr().out
+
+
+def test_check_json_prints_json_on_errors(tmp_path, capsys):
+    bad = tmp_path / "bad.toml"
+    bad.write_text(small_sequence().replace("wavelength_nm = 880", "wavelength_nm = 1310"))
+    assert main(["check", str(bad), "--json"]) == 1
+    out = json.loads(capsys.readouterr().out)
+    assert out["exit_code"] == 1
+    assert out["error"]["key"] == "optics.laser.wavelength_nm"
+    assert out["error"]["line"] == bad.read_text().splitlines().index("wavelength_nm = 1310") + 1
+    assert "1310" in out["error"]["message"]
+
+
+def test_unwritable_output_exits_1_and_interrupt_exits_130(seq, tmp_path, capsys, monkeypatch):
+    blocker = tmp_path / "afile.txt"
+    blocker.write_text("x")
+    assert main(["report", str(seq), "-o", str(blocker / "r.html")]) == 1
+    assert "internal" not in capsys.readouterr().err
+
+    def interrupted(*a, **k):
+        raise KeyboardInterrupt
+
+    monkeypatch.setattr("stimplan.cli._load_and_plan", interrupted)
+    assert main(["check", str(seq)]) == 130
