@@ -24,7 +24,7 @@ EXIT_OK, EXIT_INPUT, EXIT_EXPOSURE, EXIT_INTERNAL, EXIT_INTERRUPTED = 0, 1, 2, 3
 EXIT_CODES = """exit codes:
   0    success
   1    invalid input, usage or environment error (unreadable or unwritable path,
-       full disk, no display)
+       full disk)
   2    refused: the exposure estimate is above a limit (export without --acknowledge)
   3    internal error (a bug: please report it with --debug output)
   130  interrupted (Ctrl-C); an interrupted export leaves no complete-looking folder"""
