@@ -12,9 +12,10 @@ import argparse
 import json
 import sys
 from collections.abc import Sequence
+from pathlib import Path
 
 from . import __version__
-from .errors import ExposureLimitError, StimplanError
+from .errors import ExportError, ExposureLimitError, StimplanError
 from .summary import plan_summary, print_table
 
 __all__ = ["main", "build_parser", "plan_summary", "print_table"]  # the last two re-exported
@@ -85,9 +86,23 @@ def _cmd_export(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+def _check_report_target(output: str, *, force: bool) -> None:
+    """Refuse, before any computing, a report path that cannot be written."""
+    from .export import check_writable_location
+
+    dst = Path(output).absolute()
+    allowed = "a new file, or with --force an existing file"
+    if dst.is_dir():
+        raise ExportError("output", str(dst), allowed, "it is a folder")
+    if dst.exists() and not force:
+        raise ExportError("output", str(dst), allowed, "it exists; pass --force to replace it")
+    check_writable_location(dst)
+
+
 def _cmd_report(args: argparse.Namespace) -> int:
     from .report import write_report
 
+    _check_report_target(args.output, force=args.force)
     plan = _load_and_plan(args.file)
     out = write_report(plan, args.output, force=args.force)
     print_table(plan)

@@ -40,6 +40,7 @@ from .errors import ConfigError, ExportError, ExposureLimitError, InputFileError
 __all__ = [
     "is_export_folder",
     "check_export_target",
+    "check_writable_location",
     "EXPORT_FORMAT",
     "TIMELINE_COLUMNS",
     "export_plan",
@@ -215,6 +216,13 @@ def check_export_target(
                 "it holds no stimplan export (no manifest.json of this format); "
                 "--force replaces only an earlier export",
             )
+    check_writable_location(dst)
+    return dst
+
+
+def check_writable_location(path: str | Path) -> None:
+    """Refuse a path whose nearest existing parent is not a folder one can write to."""
+    dst = Path(path).absolute()
     parent = dst.parent
     while not parent.exists() and parent != parent.parent:
         parent = parent.parent
@@ -222,7 +230,6 @@ def check_export_target(
         raise ExportError(
             "output", str(dst), "a location you can write to", f"{parent} is not writable"
         )
-    return dst
 
 
 def export_plan(

@@ -124,6 +124,8 @@ def test_unwritable_output_exits_1_and_interrupt_exits_130(seq, tmp_path, capsys
     blocker.write_text("x")
     assert main(["report", str(seq), "-o", str(blocker / "r.html")]) == 1
     assert "internal" not in capsys.readouterr().err
+    assert main(["report", str(seq), "-o", str(tmp_path)]) == 1  # a folder: refused at once
+    assert "it is a folder" in capsys.readouterr().err
 
     def interrupted(*a, **k):
         raise KeyboardInterrupt
