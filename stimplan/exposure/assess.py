@@ -34,7 +34,6 @@ from __future__ import annotations
 import math
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field, replace
-from functools import lru_cache
 from typing import Any
 
 import numpy as np
@@ -43,7 +42,8 @@ from .. import validate
 from ..cautions import CAUTION_SHORT, CAUTIONS, EDITION
 from ..errors import ConfigError
 from ..grid import RetinalGrid
-from .discs import DiscIntegrator, DiscSums, check_grid, peak_location, point_area_mm2, prefix_sums
+from .disc_bound import PreparedMap, disc_sums_at
+from .discs import DiscIntegrator, check_grid, peak_location, point_area_mm2
 from .factors import ALPHA_MAX_MRAD, ALPHA_MIN_MRAD, check_wavelength, grouping_times_s
 from .frames import (
     Frame,
@@ -314,17 +314,18 @@ class _Timeline:
         )
 
 
-@lru_cache(maxsize=64)
-def _disc_sums(diameter_um: float, pitch_x_um: float, pitch_y_um: float, shape) -> DiscSums:
-    """One :class:`DiscSums` per disc and grid, shared by the assessments of a session."""
-    return DiscSums(diameter_um, pitch_x_um, pitch_y_um, shape)
-
-
 #: Samples summed exactly at most, to settle a maximum the FFT round-off leaves open.
 _MAX_CANDIDATES = 4096
 
 
-def _sample_bound(pm, sums, prefix, irr, err: float) -> float:
+def _sums_at_samples(prepared: PreparedMap, diameter_um: float, rows, cols) -> np.ndarray:
+    """Exact disc sums centred on samples ``(rows, cols)`` (mW for a map in mW/mm^2)."""
+    x = np.asarray(cols, dtype=np.float64) * prepared.pitch_x_um
+    y = np.asarray(rows, dtype=np.float64) * prepared.pitch_y_um
+    return disc_sums_at(prepared, diameter_um / 2.0, x, y)
+
+
+def _sample_bound(pm, prepared: PreparedMap, diameter_um: float, err: float) -> float:
     """Upper bound of the largest disc power over every sample centre.
 
     Every FFT value is within ``err`` of the exact sum
@@ -336,7 +337,7 @@ def _sample_bound(pm, sums, prefix, irr, err: float) -> float:
     rr, cc = np.nonzero(pm >= top - 2.0 * err)
     if rr.size > _MAX_CANDIDATES:
         return top + err
-    return float(sums.at(prefix, irr, rr, cc).max())
+    return float(_sums_at_samples(prepared, diameter_um, rr, cc).max())
 
 
 class _MapSweep:
@@ -379,7 +380,7 @@ class _MapSweep:
         cache = self.cache if (key is not None and self.cache is not None) else {}
         todo = [d for d, t in zip(diameters, tags, strict=True) if t not in cache]
         if todo:
-            prefix = prefix_sums(irr)
+            prepared = PreparedMap.of(irr, g.pitch_x_um, g.pitch_y_um)
             f32 = irr if irr.dtype == np.float32 else irr.astype(np.float32)
             a64 = irr.astype(np.float64, copy=False)
             l1, l2 = float(a64.sum()), float(np.sqrt(np.sum(a64 * a64)))
@@ -391,10 +392,9 @@ class _MapSweep:
                 else:
                     pm = integ.power_map_mw(f32, d, spectra)
                     r, c = peak_location(pm)
-                    sums = _disc_sums(d, g.pitch_x_um, g.pitch_y_um, g.shape)
-                    exact = float(sums.at(prefix, irr, [r], [c])[0])
+                    exact = float(_sums_at_samples(prepared, d, [r], [c])[0])
                     err = integ.error_bound_mw(l1, l2, d)
-                    value = max(exact, _sample_bound(pm, sums, prefix, irr, err))
+                    value = max(exact, _sample_bound(pm, prepared, d, err))
                 cache[(key, g.shape, g.pitch_x_um, g.pitch_y_um, d)] = (r, c, value)
         return [cache[t] for t in tags]
 
@@ -428,17 +428,11 @@ class _MapSweep:
         g = self.grid
         out = {}
         for gi in self.lit:
-            irr = self._read(gi)
-            prefix = prefix_sums(irr)
+            prepared = PreparedMap.of(self._read(gi), g.pitch_x_um, g.pitch_y_um)
             row = []
             for d, locs in zip(diameters, locations, strict=True):
                 rr, cc = np.array(locs, dtype=np.intp).reshape(-1, 2).T
-                if d <= min(g.pitch_x_um, g.pitch_y_um):
-                    row.append(irr[rr, cc].astype(np.float64) * point_area_mm2(d))
-                else:
-                    row.append(
-                        _disc_sums(d, g.pitch_x_um, g.pitch_y_um, g.shape).at(prefix, irr, rr, cc)
-                    )
+                row.append(_sums_at_samples(prepared, d, rr, cc))
             out[gi] = row
         return out
 

@@ -2,8 +2,8 @@
 
 * :func:`disc_kernel` is the area-weighted disc: each sample holds the area of
   its cell inside the circle (the map is taken as uniform within a sample).
-* :class:`DiscSums` sums that kernel exactly at chosen sample centres from row
-  prefix sums (one difference per kernel row plus the cut cells at the edge).
+* exact sums at chosen centres are in :mod:`stimplan.exposure.disc_bound`
+  (summed-area table, closed-form cut cells).
 * :class:`DiscIntegrator` and :func:`disc_power_map` give the disc power at
   every sample centre by an FFT convolution; :func:`peak_location` finds its
   maximum (the centre of a plateau of tied values).
@@ -12,8 +12,6 @@ References
 ----------
 .. [1] ICNIRP, Health Phys. 105, 271-295 (2013) (varying acceptance angle for
    extended sources).
-.. [2] F. C. Crow, "Summed-area tables for texture mapping", Comput. Graph.
-   18(3), 207-212 (1984) (sums over a region from prefix sums).
 """
 
 from __future__ import annotations
@@ -34,8 +32,6 @@ from .retina import HUMAN_EYE, EyeModel, retinal_image_diameter_um
 __all__ = [
     "disc_kernel",
     "kernel_half",
-    "prefix_sums",
-    "DiscSums",
     "DiscIntegrator",
     "point_area_mm2",
     "check_grid",
@@ -74,115 +70,6 @@ def disc_kernel(
     hy = min(int(math.ceil(r / py + 0.5)), max_half_rows)
     hx = min(int(math.ceil(r / px + 0.5)), max_half_cols)
     return (cell_areas_um2(r, px, py, hy, hx) * 1e-6).astype(np.float32)
-
-
-def prefix_sums(irradiance: np.ndarray, out: np.ndarray | None = None) -> np.ndarray:
-    """Row prefix sums ``P[r, c] = sum(irradiance[r, :c])``, float64, ``(rows, cols + 1)``.
-
-    ``out``, if given, is a float64 array of that shape to write into.
-    """
-    rows, cols = irradiance.shape
-    if out is None:
-        out = np.empty((rows, cols + 1), dtype=np.float64)
-    elif out.shape != (rows, cols + 1) or out.dtype != np.float64 or not out.flags.c_contiguous:
-        raise ConfigError("out", out, f"a C-contiguous float64 array of shape {(rows, cols + 1)}")
-    _prefix_rows(np.ascontiguousarray(irradiance), out)
-    return out
-
-
-@nb.njit(parallel=True, cache=True, nogil=True)
-def _prefix_rows(irr, out):  # pragma: no cover - compiled
-    rows, cols = irr.shape
-    for r in nb.prange(rows):
-        acc = 0.0
-        out[r, 0] = 0.0
-        for c in range(cols):
-            acc += irr[r, c]
-            out[r, c + 1] = acc
-
-
-@nb.njit(parallel=True, cache=True, nogil=True)
-def _sums_at(
-    prefix, irr, rr, cc, run_dr, run_a, run_b, run_w, edge_dr, edge_dc, edge_w, out
-):  # pragma: no cover - compiled
-    rows, cols = irr.shape
-    for i in nb.prange(rr.size):
-        r0 = rr[i]
-        c0 = cc[i]
-        acc = 0.0
-        for k in range(run_dr.size):
-            r = r0 + run_dr[k]
-            if r < 0 or r >= rows:
-                continue
-            a = max(c0 + run_a[k], 0)
-            b = min(c0 + run_b[k], cols - 1)
-            if a <= b:
-                acc += run_w[k] * (prefix[r, b + 1] - prefix[r, a])
-        for k in range(edge_dr.size):
-            r = r0 + edge_dr[k]
-            c = c0 + edge_dc[k]
-            if 0 <= r < rows and 0 <= c < cols:
-                acc += edge_w[k] * irr[r, c]
-        out[i] = acc
-
-
-class DiscSums:
-    """Exact sums of the area-weighted disc kernel at chosen centres of one map.
-
-    The kernel (:func:`disc_kernel`) is split, row by row, into the run of cells
-    wholly inside the circle (one weight, summed from row prefix sums) and the
-    cut cells at its edge (each with its own weight). Light outside the map is
-    zero, as in a zero-padded convolution. The sums are formed in float64.
-
-    Parameters
-    ----------
-    diameter_um : float
-    pitch_x_um, pitch_y_um : float
-    shape : tuple of int
-        The map's ``(rows, cols)``.
-    """
-
-    def __init__(self, diameter_um: float, pitch_x_um: float, pitch_y_um: float, shape):
-        rows, cols = shape
-        hy, hx = kernel_half(diameter_um, pitch_x_um, pitch_y_um, rows, cols)
-        self.diameter_um, self.pitch_x_um, self.pitch_y_um = diameter_um, pitch_x_um, pitch_y_um
-        self.half = (hy, hx)
-        self.shape = (rows, cols)
-        k = disc_kernel(diameter_um, pitch_x_um, pitch_y_um, hy, hx).astype(np.float64)
-        full = k.max() if k.size else 0.0
-        run_dr, run_a, run_b, run_w, edge = [], [], [], [], np.zeros(k.shape, bool)
-        for i in range(k.shape[0]):
-            inside = np.flatnonzero(k[i] == full)
-            if inside.size:
-                a, b = int(inside[0]), int(inside[-1])
-                run_dr.append(i - hy)
-                run_a.append(a - hx)
-                run_b.append(b - hx)
-                run_w.append(full)
-                edge[i] = k[i] > 0
-                edge[i, a : b + 1] = False
-            else:
-                edge[i] = k[i] > 0
-        er, ec = np.nonzero(edge)
-        self._runs = (
-            np.asarray(run_dr, np.int64),
-            np.asarray(run_a, np.int64),
-            np.asarray(run_b, np.int64),
-            np.asarray(run_w, np.float64),
-        )
-        self._edges = ((er - hy).astype(np.int64), (ec - hx).astype(np.int64), k[er, ec])
-
-    def at(self, prefix: np.ndarray, irradiance: np.ndarray, rows, cols) -> np.ndarray:
-        """Disc sums (float64, mW for a map in mW/mm²) centred at samples ``(rows, cols)``.
-
-        ``prefix`` is :func:`prefix_sums` of ``irradiance``.
-        """
-        rr = np.ascontiguousarray(rows, dtype=np.int64).ravel()
-        cc = np.ascontiguousarray(cols, dtype=np.int64).ravel()
-        out = np.empty(rr.size, dtype=np.float64)
-        if rr.size:
-            _sums_at(prefix, irradiance, rr, cc, *self._runs, *self._edges, out)
-        return out
 
 
 def point_area_mm2(diameter_um: float) -> float:
