@@ -116,7 +116,7 @@ def test_the_bound_holds_over_a_fine_lattice_of_centres(name, r_um):
 def test_a_shift_by_half_a_sample_gives_the_same_bound():
     # The same light on a grid twice as fine, moved by one fine sample (half a coarse
     # sample): the largest disc power over continuous centres is the same, so each
-    # bound holds the other's value.
+    # bound holds the other's value.  # common practice (translation invariance)
     n = 32
     coarse = _speckle(n, 5)
     fine = np.kron(coarse, np.ones((2, 2), np.float32))

@@ -482,6 +482,8 @@ def test_a_two_map_sequence_against_a_direct_evaluation_at_every_place():
     # The reference evaluates, at every sample centre and on a grid of angles, the
     # timeline of that place (each pulse carrying its map's disc power there) with the
     # public single-place rules; the sequence bound must hold every one of them.
+    # common practice: a bound over places holds each place; the single-place rules
+    # themselves are pinned to the Directive's tables in test_exposure_limits.py.
     from scipy.signal import correlate
 
     n, p = 16, 40.0
