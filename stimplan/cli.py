@@ -3,7 +3,8 @@
 Commands: ``demo``, ``check``, ``export``, ``report``, ``preview``.
 
 Exit codes: 0 success, 1 invalid input, 2 exposure refusal, 3 internal error.
-Errors print one line, without a traceback unless ``--debug`` is given.
+Errors print one line each, ``stimplan: error: ...``, without a traceback unless
+``--debug`` is given.
 """
 
 from __future__ import annotations
@@ -207,7 +208,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     except StimplanError as exc:
         if args.debug:
             raise
-        return fail(exc, EXIT_INPUT, f"stimplan: error: {_one_line(exc)}")
+        return fail(exc, EXIT_INPUT, _error_lines(exc))
     except KeyboardInterrupt as exc:
         return fail(exc, EXIT_INTERRUPTED, "stimplan: interrupted")
     except OSError as exc:  # the environment: unwritable, missing, full disk
@@ -220,12 +221,12 @@ def main(argv: Sequence[str] | None = None) -> int:
         return fail(exc, EXIT_INTERNAL, f"stimplan: internal error: {type(exc).__name__}: {exc}")
 
 
-def _one_line(exc: Exception) -> str:
-    text = str(exc)
-    lines = [ln.strip() for ln in text.splitlines() if ln.strip()]
-    if len(lines) <= 1:
-        return text
-    return "; ".join(lines)
+def _error_lines(exc: Exception) -> str:
+    """One line per error, each starting ``stimplan: error:``; a heading says where."""
+    lines = [ln.strip() for ln in str(exc).splitlines() if ln.strip()] or [type(exc).__name__]
+    if len(lines) == 2:  # where, and its one error
+        lines = [f"{lines[0]}: {lines[1]}"]
+    return "\n".join(f"stimplan: error: {ln}" for ln in lines)
 
 
 if __name__ == "__main__":  # pragma: no cover

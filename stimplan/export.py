@@ -6,7 +6,9 @@ An export folder holds
   grey values) or ``holograms/hologram_000.png`` ... (one PNG each);
 * ``timeline.csv``: one row per frame;
 * ``manifest.json``: format version, stimplan version, the fully resolved
-  configuration, the seed, the SHA-256 of every file, the predicted figures
+  configuration, the seed, the SHA-256 of every file, the grey lookup
+  (grey value and phase of every level, and the checksum of a measured
+  table file), the frame and hologram counts, the predicted figures
   of every hologram and frame, and the exposure verdict with the cautions.
 
 Writing is atomic (a temporary sibling folder renamed at the end), never
@@ -36,6 +38,7 @@ from . import __version__
 from ._atomic import atomic_folder
 from .cautions import CAUTIONS
 from .errors import ConfigError, ExportError, ExposureLimitError, InputFileError, IntegrityError
+from .holography.quantize import grey_map_for
 
 __all__ = [
     "is_export_folder",
@@ -104,6 +107,28 @@ def _hologram_entry(sp) -> dict[str, Any]:
             sp.hologram_figures.as_dict() if sp.hologram_figures else None
         )
         entry["mask_figures_per_mw"] = sp.mask_figures.as_dict() if sp.mask_figures else None
+    return entry
+
+
+def _lookup_entry(slm) -> dict[str, Any]:
+    """The grey lookup the stack was written with: enough to turn grey back into phase.
+
+    ``level_grey[k]`` is the grey value shown for phase level ``k`` and
+    ``level_phase_rad[k]`` the phase it produces. A measured table file is
+    recorded by its path and the SHA-256 of its bytes as read for this export.
+    """
+    lut = grey_map_for(slm)
+    entry: dict[str, Any] = {
+        "kind": "table" if slm.lut_file else "linear",
+        "levels": lut.levels,
+        "level_grey": [int(g) for g in lut.level_grey],
+        "level_phase_rad": [float(p) for p in lut.level_phase_rad],
+        "source_file": None,
+        "source_sha256": None,
+    }
+    if slm.lut_file:
+        entry["source_file"] = str(Path(slm.lut_file).absolute())
+        entry["source_sha256"] = sha256_file(slm.lut_file)
     return entry
 
 
@@ -313,6 +338,9 @@ def export_plan(
                 for name in files
             },
             "holograms": [_hologram_entry(sp) for sp in plan.holograms],
+            "n_frames": len(plan.frames),
+            "n_holograms": len(plan.holograms),
+            "grey_lookup": _lookup_entry(plan.spec.system.slm),
             "frames": [_frame_entry(fr) for fr in plan.frames],
             "exposure": None if plan.exposure is None else plan.exposure.as_dict(),
             "mask_exposure": None if plan.mask_exposure is None else plan.mask_exposure.as_dict(),

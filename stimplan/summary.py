@@ -114,14 +114,18 @@ def print_table(plan, file=None) -> None:
         )
     e = s["exposure"]
     mp = e["max_peak_frame_power_mw"]
+    needs = ", ".join(
+        f"{r['name']} {_fmt(r['mask_laser_power_mw'])} mW"
+        for r in s["stimuli"]
+        if r["mask_laser_power_mw"] is not None
+    )
+    compare = (
+        f"the mask needs {needs} for the same ON-pixel irradiance"
+        if needs
+        else "no mask comparison (it needs an [implant] with ON pixels)"
+    )
     print(
-        "power planning: the mask needs "
-        + ", ".join(
-            f"{r['name']} {_fmt(r['mask_laser_power_mw'])} mW"
-            for r in s["stimuli"]
-            if r["mask_laser_power_mw"] is not None
-        )
-        + f" for the same ON-pixel irradiance; largest peak frame power within every limit: "
+        f"power planning: {compare}; largest peak frame power within every limit: "
         f"hologram {_fmt(_num(mp['hologram']))} mW, mask {_fmt(_num(mp['mask']))} mW",
         file=file,
     )

@@ -63,6 +63,29 @@ def test_invalid_input_exits_1_naming_the_key(tmp_path, capsys):
     assert len(err.splitlines()) == 1
 
 
+def test_each_error_has_its_own_line(tmp_path, capsys):
+    bad = tmp_path / "bad.toml"
+    text = small_sequence().replace("wavelength_nm = 880", "wavelength_nm = -5")
+    bad.write_text(text.replace("pitch_um = 8.0", 'pitch_um = "8"'))
+    assert main(["check", str(bad)]) == 1
+    lines = capsys.readouterr().err.strip().splitlines()
+    # a heading that says where, then one line for each of the two errors
+    assert len(lines) == 3 and all(ln.startswith("stimplan: error: ") for ln in lines)
+    assert "2 errors" in lines[0]
+    assert sum("wavelength_nm" in ln for ln in lines) == 1
+    assert sum("pitch_um" in ln for ln in lines) == 1
+
+
+def test_summary_without_an_implant_says_there_is_no_mask_comparison(tmp_path, capsys):
+    seq = tmp_path / "no_implant.toml"
+    text = small_sequence().replace('[implant]\npreset = "rat_55um"\n', "")
+    text = text.replace("bar_width_px = 2", "bar_width_um = 110")
+    seq.write_text(text.replace("irradiance_mw_per_mm2 = 1.0", "power_mw = 1.0"))
+    assert main(["check", str(seq)]) == 0
+    out = capsys.readouterr().out
+    assert "no mask comparison" in out and "needs  for" not in out
+
+
 def test_over_limit_export_exits_2_and_acknowledgement_is_recorded(tmp_path, capsys):
     hot = tmp_path / "hot.toml"
     hot.write_text(small_sequence(irradiance=5000.0))

@@ -64,7 +64,14 @@ def test_export_round_trip_and_tamper_detection(plan, seq_file, tmp_path):
     man = bundle.manifest
     assert man["seed"] == 3 and man["config"]["seed"] == 3
     assert "estimate" in man["cautions"] and man["verdict"] == "within"
-    assert len(bundle.timeline) == len(plan.frames)
+    assert len(bundle.timeline) == len(plan.frames) == man["n_frames"]
+    assert man["n_holograms"] == len(plan.holograms) == len(bundle.grey)
+    # Source: definition of a linear phase drive (common practice): level k of L shows
+    # grey k and gives 2πk/L; the manifest alone turns grey back into phase
+    look = man["grey_lookup"]
+    assert look["kind"] == "linear" and look["levels"] == 256
+    assert look["level_grey"] == list(range(256))
+    np.testing.assert_allclose(look["level_phase_rad"], 2 * np.pi * np.arange(256) / 256, atol=1e-6)
     spec = load_sequence(seq_file)
     lut = grey_map_for(spec.system.slm)
     from dataclasses import replace
@@ -83,6 +90,28 @@ def test_export_round_trip_and_tamper_detection(plan, seq_file, tmp_path):
     stack.write_bytes(bytes(data))
     with pytest.raises(IntegrityError, match="holograms.tif"):
         load_export(out)
+
+
+def test_manifest_records_a_measured_lookup_table(tmp_path):
+    # A table of 512 grey values with phase 2πg/512: level k of 256 (wanted 2πk/256) is
+    # served by grey 2k, which gives exactly 2πk/256 (hand count); the checksum is the
+    # SHA-256 of the file's bytes. Source: FIPS 180-4 via Python's hashlib.
+    import hashlib
+
+    g = np.arange(512)
+    table = tmp_path / "lut.csv"
+    table.write_text("grey,phase_rad\n" + "".join(f"{k},{2 * np.pi * k / 512:.17g}\n" for k in g))
+    seq = tmp_path / "lut.toml"
+    seq.write_text(
+        small_sequence().replace("phase_levels = 256", 'phase_levels = 256\nlut_file = "lut.csv"')
+    )
+    plan = plan_sequence(load_sequence(seq), progress=False)
+    man = load_export(export_plan(plan, tmp_path / "exp")).manifest
+    look = man["grey_lookup"]
+    assert look["kind"] == "table" and look["source_file"] == str(table)
+    assert look["source_sha256"] == hashlib.sha256(table.read_bytes()).hexdigest()
+    assert look["level_grey"] == list(range(0, 512, 2))
+    np.testing.assert_allclose(look["level_phase_rad"], 2 * np.pi * np.arange(256) / 256, atol=1e-6)
 
 
 def test_png_stack_and_manifest_reader(plan, tmp_path):

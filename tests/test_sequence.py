@@ -734,19 +734,49 @@ def test_whole_sequence_repeats():
     assert total_duration_ms(frames) == 2 * 400
 
 
-def test_alternation_cuts_the_last_frame():
-    # 1000 ms in frames of 300 ms: 300, 300, 300, 100 (hand count).
+def test_alternation_with_a_cut_last_frame_is_refused():
+    # 1000 ms in frames of 300 ms would end on a 100 ms frame (hand count): refused,
+    # with the whole numbers of 300 ms next to it (900 and 1200 ms).
+    err = _errors(
+        _with_steps(
+            'alternate = ["checks", "checks:reversed"]\nalternate_ms = 300\nduration_ms = 1000\n'
+            "pulse_ms = 10\nrate_hz = 20"
+        )
+    )
+    (e,) = [e for e in err.errors if e.field.endswith("duration_ms")]
+    assert e.field == "steps[0].duration_ms" and "900" in e.allowed and "1200" in e.allowed
+    assert "100 ms" in str(e)
+
+
+def test_alternation_must_hold_whole_pulse_periods():
+    # 20 Hz is a 50 ms period; 275 ms frames would restart the train every 5.5 periods.
+    err = _errors(
+        _with_steps(
+            'alternate = ["checks", "checks:reversed"]\nalternate_ms = 275\nduration_ms = 1100\n'
+            "pulse_ms = 10\nrate_hz = 20"
+        )
+    )
+    assert [e.field for e in err.errors] == ["steps[0].alternate_ms"]
+    assert "50 ms" in err.errors[0].allowed
+
+
+def test_alternation_counts_frames_and_pulses():
+    # 1200 ms in frames of 300 ms at 20 Hz: 4 frames of 6 pulses each (hand count).
     text = _with_steps(
-        'alternate = ["checks", "checks:reversed"]\nalternate_ms = 300\nduration_ms = 1000\n'
+        'alternate = ["checks", "checks:reversed"]\nalternate_ms = 300\nduration_ms = 1200\n'
         "pulse_ms = 10\nrate_hz = 20"
     )
     spec = parse_sequence(text)
     frames = expand_timeline(spec)
     assert [f.stimulus for f in frames] == ["checks", "checks:reversed"] * 2
-    assert [f.duration_ms for f in frames] == pytest.approx([300, 300, 300, 100])
-    # 20 Hz: 6 pulses in each 300 ms frame, 2 in the last 100 ms (hand count).
-    assert [f.n_pulses for f in frames] == [6, 6, 6, 2]
+    assert [f.duration_ms for f in frames] == pytest.approx([300, 300, 300, 300])
+    assert [f.n_pulses for f in frames] == [6, 6, 6, 6]
     assert spec.stimuli["checks:reversed"] == spec.stimuli["checks"].reversed()
+
+
+def test_a_folder_given_as_the_sequence_file_is_named_as_such(tmp_path):
+    with pytest.raises(SequenceError, match="a folder, not a sequence file"):
+        load_sequence(tmp_path)
 
 
 def test_pulses_start_with_the_frame_and_the_last_one_is_cut():

@@ -119,6 +119,11 @@ class ExposureAssessment:
 
     Attributes
     ----------
+    n_maps : int
+        Distinct irradiance maps assessed (frames showing one hologram share
+        a map; the sequence's frame count is the plan's).
+    n_pulses : int
+        Pulses of the whole sequence, every one counted.
     worst_ratio : float
         Upper bound of the exposure/limit ratio of the standard over every
         sample centre and acceptance angle (1.5-100 mrad) and all three rules.
@@ -139,7 +144,7 @@ class ExposureAssessment:
 
     wavelength_nm: float
     grid: RetinalGrid = field(repr=False)
-    n_frames: int
+    n_maps: int
     n_pulses: int
     duration_s: float
     dose_map_mj_per_mm2: np.ndarray = field(repr=False)
@@ -215,8 +220,8 @@ class ExposureAssessment:
     def summary(self) -> str:
         lines = [
             f"Exposure estimate ({self.edition})",
-            f"  {self.wavelength_nm:g} nm, {self.n_frames} frame(s), {self.n_pulses} pulse(s) "
-            f"over {self.duration_s:.4g} s",
+            f"  {self.wavelength_nm:g} nm, {self.n_maps} irradiance map(s), "
+            f"{self.n_pulses} pulse(s) over {self.duration_s:.4g} s",
             f"  peak retinal irradiance {self.peak_irradiance_mw_per_mm2:.4g} mW/mm², "
             f"largest dose {self.max_dose_mj_per_mm2:.4g} mJ/mm²",
         ]
@@ -255,7 +260,7 @@ class ExposureAssessment:
             "edition": self.edition,
             "wavelength_nm": self.wavelength_nm,
             "duration_s": self.duration_s,
-            "n_frames": self.n_frames,
+            "n_maps": self.n_maps,
             "n_pulses": self.n_pulses,
             "worst_ratio": self.worst_ratio,
             "found_ratio": self.found_ratio,
@@ -720,7 +725,7 @@ def _result(
     return ExposureAssessment(
         wavelength_nm=lam,
         grid=grid,
-        n_frames=len(items),
+        n_maps=len(items),
         n_pulses=len(pulses),
         duration_s=total,
         dose_map_mj_per_mm2=dose.astype(np.float32),

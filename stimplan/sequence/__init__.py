@@ -23,8 +23,9 @@ Timeline rules
     for each whole-sequence repeat). A step runs ``repeat`` times, each
     repetition followed by a dark pause of ``blank_after_ms`` (a frame with
     no stimulus and no pulses). An alternating step is cut into frames of
-    ``alternate_ms`` that show the two stimuli in turn; the last frame is
-    cut to fit the step. Every frame starts its own pulse train at its start
+    ``alternate_ms`` that show the two stimuli in turn; ``duration_ms`` must
+    be a whole number of ``alternate_ms``, and ``alternate_ms`` a whole number
+    of pulse periods (no frame is cut short). Every frame starts its own pulse train at its start
     time, with pulses of ``pulse_ms`` every ``1000 / rate_hz`` ms; a pulse
     that would run past the frame's end is cut at the end.
 

@@ -69,6 +69,8 @@ def load_sequence(path: str | os.PathLike[str]) -> SequenceSpec:
     except (TypeError, ValueError) as exc:
         raise SequenceError([ConfigError("file", path, "a file path", str(exc))]) from None
     try:
+        if p.is_dir():
+            raise IsADirectoryError("a folder, not a sequence file")
         if not p.is_file():
             raise FileNotFoundError("no such file")
         size = p.stat().st_size

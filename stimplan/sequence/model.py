@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import dataclasses
+import math
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 from typing import Any
@@ -20,6 +21,7 @@ from .keys import (
     IFTA_KEYS,
     IRRADIANCE_BASES,
     MAX_FRAMES,
+    PIECE_TOL_MS,
     SEED_MAX,
     STEP_REQUIRED,
 )
@@ -31,6 +33,12 @@ def pair_um(path: str, value: Any) -> tuple[float, float]:
     if not isinstance(value, (list, tuple)) or len(value) != 2:
         raise ConfigError(path, value, "a pair [x, y] of numbers (µm)")
     return (validate.number(f"{path}[0]", value[0]), validate.number(f"{path}[1]", value[1]))
+
+
+def _whole(total_ms: float, piece_ms: float) -> bool:
+    """Whether ``total_ms`` is a whole number of ``piece_ms`` (to ``PIECE_TOL_MS`` of a piece)."""
+    r = total_ms / piece_ms
+    return math.isfinite(r) and abs(r - round(r)) <= PIECE_TOL_MS * max(1.0, r)
 
 
 def check_step_values(prefix: str, d: Mapping[str, Any], errors: list[ConfigError]) -> dict:
@@ -84,6 +92,26 @@ def check_step_values(prefix: str, d: Mapping[str, Any], errors: list[ConfigErro
                 alt,
                 f"< duration_ms ({dur:g} ms)",
                 "the pair must alternate at least once",
+            )
+        )
+    if alt is not None and dur is not None and alt < dur and not _whole(dur, alt):
+        n = math.floor(dur / alt)
+        errors.append(
+            ConfigError(
+                f"{prefix}.duration_ms",
+                dur,
+                f"a whole number of alternate_ms ({alt:g} ms), "
+                f"e.g. {n * alt:g} or {(n + 1) * alt:g}",
+                f"the last frame would be cut to {dur - n * alt:g} ms",
+            )
+        )
+    if alt is not None and rate is not None and not _whole(alt, 1000.0 / rate):
+        errors.append(
+            ConfigError(
+                f"{prefix}.alternate_ms",
+                alt,
+                f"a whole number of pulse periods (1000 / rate_hz = {1000.0 / rate:g} ms)",
+                "each frame restarts the pulse train, so the rate would change at every frame",
             )
         )
     if alt is not None and pulse is not None and pulse > alt:
