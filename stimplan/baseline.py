@@ -75,7 +75,7 @@ class AmplitudeMask:
             val = getattr(self, name)
             if val is not None:
                 object.__setattr__(
-                    self, name, validate.number(f"mask.{name}", val, lo=0, lo_open=True)
+                    self, name, validate.physical(f"mask.{name}", val, "retinal_length_um")
                 )
 
 

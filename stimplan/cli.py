@@ -26,7 +26,7 @@ EXIT_OK, EXIT_INPUT, EXIT_EXPOSURE, EXIT_INTERNAL, EXIT_INTERRUPTED = 0, 1, 2, 3
 EXIT_CODES = """exit codes:
   0    success
   1    invalid input, usage or environment error (unreadable or unwritable path,
-       full disk)
+       full disk, too little memory for the plan, no display for preview)
   2    refused: the exposure estimate is above a limit (export without --acknowledge)
   3    internal error (a bug: please report it with --debug output)
   130  interrupted (Ctrl-C); an interrupted export leaves no complete-looking folder"""
@@ -43,12 +43,40 @@ class _Parser(argparse.ArgumentParser):
 # -- shared ---------------------------------------------------------------------------
 
 
-def _load_and_plan(path: str, *, quiet: bool = False):
+def _load_and_plan(args: argparse.Namespace, *, quiet: bool = False):
+    """Load the sequence, refuse it if its memory estimate is too high, and plan it."""
     from .plan import plan_sequence
+    from .plan.memory import check_memory
     from .sequence import load_sequence
 
-    spec = load_sequence(path)
-    return plan_sequence(spec, progress=not quiet)
+    spec = load_sequence(args.file)
+    gb = args.max_memory_gb
+    check_memory(spec, limit_bytes=None if gb is None else gb * 2**30)
+    return plan_sequence(spec, progress=not (quiet or args.quiet))
+
+
+def _memory_gb(text: str) -> float:
+    """``--max-memory-gb``: a positive, finite number of GiB."""
+    try:
+        gb = float(text)
+    except ValueError:
+        gb = float("nan")
+    if not (0 < gb < float("inf")):
+        raise argparse.ArgumentTypeError(f"a positive number of GiB, not {text!r}")
+    return gb
+
+
+def _planning_options(p: argparse.ArgumentParser) -> None:
+    p.add_argument(
+        "--quiet", action="store_true", help="no progress bars (they go to stderr, TTY only)"
+    )
+    p.add_argument(
+        "--max-memory-gb",
+        type=_memory_gb,
+        metavar="GIB",
+        help="refuse a plan whose memory estimate is above this "
+        "(default: 80%% of the available memory)",
+    )
 
 
 # -- commands -------------------------------------------------------------------------
@@ -61,7 +89,7 @@ def _cmd_demo(args: argparse.Namespace) -> int:
 
 
 def _cmd_check(args: argparse.Namespace) -> int:
-    plan = _load_and_plan(args.file, quiet=args.json)
+    plan = _load_and_plan(args, quiet=args.json)
     if args.json:
         print(json.dumps(plan_summary(plan), indent=1))
     else:
@@ -74,7 +102,7 @@ def _cmd_export(args: argparse.Namespace) -> int:
 
     # refuse a target that may not be written before any computing
     check_export_target(args.output, force=args.force, keep=(args.file,))
-    plan = _load_and_plan(args.file)
+    plan = _load_and_plan(args)
     out = export_plan(
         plan,
         args.output,
@@ -104,14 +132,31 @@ def _cmd_report(args: argparse.Namespace) -> int:
     from .report import write_report
 
     _check_report_target(args.output, force=args.force)
-    plan = _load_and_plan(args.file)
+    plan = _load_and_plan(args)
     out = write_report(plan, args.output, force=args.force)
     print_table(plan)
     print(f"report written to {out}", file=sys.stderr)
     return EXIT_OK
 
 
+def _check_display() -> None:
+    """Refuse ``preview`` without a display: Qt would abort the process (SIGABRT)."""
+    import os
+
+    if not sys.platform.startswith("linux") or os.environ.get("QT_QPA_PLATFORM"):
+        return
+    if not (os.environ.get("DISPLAY") or os.environ.get("WAYLAND_DISPLAY")):
+        raise StimplanError(
+            "preview",
+            None,
+            "a display (DISPLAY or WAYLAND_DISPLAY set)",
+            "none is set; run it in a desktop session, or under a virtual one: "
+            "xvfb-run -a stimplan preview FILE",
+        )
+
+
 def _cmd_preview(args: argparse.Namespace) -> int:
+    _check_display()
     try:
         from stimplan_napari.preview import preview
     except ImportError as exc:
@@ -143,6 +188,7 @@ def build_parser() -> argparse.ArgumentParser:
     c = sub.add_parser("check", help="validate a sequence file and assess it")
     c.add_argument("file", help="sequence file (.toml)")
     c.add_argument("--json", action="store_true", help="print one JSON object")
+    _planning_options(c)
     c.set_defaults(func=_cmd_check)
 
     e = sub.add_parser("export", help="export the hologram stack, timeline and manifest")
@@ -155,12 +201,14 @@ def build_parser() -> argparse.ArgumentParser:
         metavar="REASON",
         help="export although the estimate is above a limit; the reason is recorded",
     )
+    _planning_options(e)
     e.set_defaults(func=_cmd_export)
 
     r = sub.add_parser("report", help="write the HTML report of a sequence")
     r.add_argument("file", help="sequence file (.toml)")
     r.add_argument("-o", "--output", required=True, help="report file (.html)")
     r.add_argument("--force", action="store_true", help="replace an existing file")
+    _planning_options(r)
     r.set_defaults(func=_cmd_report)
 
     v = sub.add_parser("preview", help="open napari with the plan of a sequence")

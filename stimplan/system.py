@@ -107,7 +107,7 @@ class SLM:
             "pixels_y",
             validate.integer("slm.pixels_y", self.pixels_y, lo=2, hi=MAX_SLM_PIXELS),
         )
-        f(self, "pitch_um", validate.number("slm.pitch_um", self.pitch_um, lo=0, lo_open=True))
+        f(self, "pitch_um", validate.physical("slm.pitch_um", self.pitch_um, "slm_pitch_um"))
         f(
             self,
             "fill_factor",
@@ -202,13 +202,13 @@ class Illumination:
         f(
             self,
             "power_mw",
-            validate.number("illumination.power_mw", self.power_mw, lo=0, lo_open=True),
+            validate.physical("illumination.power_mw", self.power_mw, "laser_power_mw"),
         )
         validate.choice("illumination.profile", self.profile, ("flat", "gaussian", "file"))
         f(
             self,
             "waist_mm",
-            validate.number("illumination.waist_mm", self.waist_mm, lo=0, lo_open=True),
+            validate.physical("illumination.waist_mm", self.waist_mm, "beam_waist_mm"),
         )
         if self.profile == "file" and not self.amplitude_file:
             raise ConfigError(
@@ -293,12 +293,12 @@ class Relay:
         object.__setattr__(
             self,
             "magnification",
-            validate.number("relay.magnification", self.magnification, lo=0, lo_open=True),
+            validate.physical("relay.magnification", self.magnification, "magnification"),
         )
         if self.fresnel_focal_mm is not None:
-            fl = validate.number("relay.fresnel_focal_mm", self.fresnel_focal_mm)
-            if fl == 0:
-                raise ConfigError("relay.fresnel_focal_mm", fl, "a non-zero focal length")
+            fl = validate.physical(
+                "relay.fresnel_focal_mm", self.fresnel_focal_mm, "fresnel_focal_mm", signed=True
+            )
             object.__setattr__(self, "fresnel_focal_mm", fl)
 
 
@@ -336,12 +336,12 @@ class Eye:
         f(
             self,
             "um_per_deg",
-            validate.number("eye.um_per_deg", self.um_per_deg, lo=0, lo_open=True),
+            validate.physical("eye.um_per_deg", self.um_per_deg, "eye_um_per_deg"),
         )
         f(
             self,
             "pupil_diameter_mm",
-            validate.number("eye.pupil_diameter_mm", self.pupil_diameter_mm, lo=0, lo_open=True),
+            validate.physical("eye.pupil_diameter_mm", self.pupil_diameter_mm, "pupil_diameter_mm"),
         )
         f(
             self,

@@ -14,9 +14,11 @@ import numba as nb
 import numpy as np
 
 from .errors import ConfigError
+from .ranges import RANGES
 
 __all__ = [
     "number",
+    "physical",
     "integer",
     "choice",
     "finite_array",
@@ -66,6 +68,34 @@ def number(
         raise ConfigError(field, value, allowed)
     if hi is not None and (x > hi or (hi_open and x == hi)):
         raise ConfigError(field, value, allowed)
+    return x
+
+
+def physical(field: str, value: Any, quantity: str, *, signed: bool = False) -> float:
+    """Check a physical input against its plausibility range in :data:`stimplan.ranges.RANGES`.
+
+    Parameters
+    ----------
+    field : str
+        Field path used in the error message, e.g. ``"illumination.power_mw"``.
+    value : object
+        Value to check.
+    quantity : str
+        Key of :data:`~stimplan.ranges.RANGES`; its reason is quoted in the error.
+    signed : bool
+        Check ``abs(value)`` against the range and keep the sign (a focal length);
+        zero is then refused.
+
+    Returns
+    -------
+    float
+    """
+    rng = RANGES[quantity]
+    x = number(field, value)
+    size = abs(x) if signed else x
+    if size < rng.lo or (rng.lo_open and size == rng.lo) or size > rng.hi:
+        allowed = f"in {'(' if rng.lo_open else '['}{rng.lo:g}, {rng.hi:g}]"
+        raise ConfigError(field, value, f"|value| {allowed}" if signed else allowed, rng.reason)
     return x
 
 

@@ -155,3 +155,92 @@ def test_unwritable_output_exits_1_and_interrupt_exits_130(seq, tmp_path, capsys
 
     monkeypatch.setattr("stimplan.cli._load_and_plan", interrupted)
     assert main(["check", str(seq)]) == 130
+
+
+def test_memory_estimate_refuses_before_computing(tmp_path, capsys, monkeypatch):
+    # Source: 8192^2 SLM pixels x oversample^2 = 64 are 4.3e9 retinal samples; a float32
+    # map alone is 16 GiB (4 bytes each), beyond this machine and the default share.
+    big = tmp_path / "big.toml"
+    text = small_sequence().replace("pixels_x = 256", "pixels_x = 8192")
+    text = text.replace("pixels_y = 256", "pixels_y = 8192")
+    big.write_text(text.replace("iterations = 30\n", "iterations = 30\noversample = 8\n"))
+
+    def never(*a, **k):
+        raise AssertionError("planning started")
+
+    monkeypatch.setattr("stimplan.plan.plan_sequence", never)
+    assert main(["check", str(big), "--json"]) == 1
+    err = json.loads(capsys.readouterr().out)["error"]
+    assert err["key"] == "hologram.oversample"
+    assert "GiB" in err["message"] and "--max-memory-gb" in err["message"]
+    # an explicit, higher limit lets it through to planning (stopped here by an interrupt)
+
+    def interrupted(*a, **k):
+        raise KeyboardInterrupt
+
+    monkeypatch.setattr("stimplan.plan.plan_sequence", interrupted)
+    assert main(["check", str(big), "--max-memory-gb", "1e9"]) == 130
+    capsys.readouterr()
+    with pytest.raises(SystemExit) as ex:  # common practice: a usage error exits 1
+        main(["check", str(big), "--max-memory-gb", "-3"])
+    assert ex.value.code == 1
+    assert "positive number of GiB" in capsys.readouterr().err
+
+
+def _sigint(*a, **k):
+    """Deliver a real SIGINT to this process (Python raises KeyboardInterrupt at once)."""
+    import os
+    import signal
+
+    os.kill(os.getpid(), signal.SIGINT)
+
+
+def test_sigint_during_planning_exits_130(seq, tmp_path, capsys, monkeypatch):
+    # common practice: 130 = 128 + SIGINT (2); nothing written
+    monkeypatch.setattr("stimplan.plan.run.run_batch", _sigint)
+    assert main(["export", str(seq), "-o", str(tmp_path / "exp"), "--quiet"]) == 130
+    assert "interrupted" in capsys.readouterr().err
+    assert not (tmp_path / "exp").exists()
+
+
+def test_sigint_during_writing_keeps_the_old_export_and_leaves_no_partial(
+    seq, tmp_path, capsys, monkeypatch
+):
+    # common practice: the new export is written beside and renamed in; an interrupt
+    # leaves the old one whole and no folder that looks complete
+    out = tmp_path / "exp"
+    assert main(["export", str(seq), "-o", str(out), "--quiet"]) == 0
+    before = sorted((q.name, q.read_bytes()) for q in out.iterdir())
+    monkeypatch.setattr("stimplan.export.sha256_file", _sigint)
+    assert main(["export", str(seq), "-o", str(out), "--force", "--quiet"]) == 130
+    capsys.readouterr()
+    assert sorted((q.name, q.read_bytes()) for q in out.iterdir()) == before
+    assert sorted(q.name for q in tmp_path.iterdir()) == ["exp", "small.toml"]
+    assert main(["export", str(seq), "-o", str(tmp_path / "new"), "--quiet"]) == 130
+    assert not (tmp_path / "new").exists()
+
+
+def test_preview_without_a_display_exits_1_instead_of_aborting(seq, capsys, monkeypatch):
+    # common practice: Qt aborts the process (SIGABRT, exit 134) without a display
+    for name in ("DISPLAY", "WAYLAND_DISPLAY", "QT_QPA_PLATFORM"):
+        monkeypatch.delenv(name, raising=False)
+    assert main(["preview", str(seq)]) == 1
+    err = capsys.readouterr().err
+    assert "display" in err and "xvfb-run" in err
+
+
+def test_progress_reports_every_stage_and_is_quiet_off_a_terminal(seq, capsys):
+    # common practice: progress goes to stderr, stage by stage, and not into pipes
+    from stimplan.plan import plan_sequence
+    from stimplan.sequence import load_sequence
+
+    seen = []
+    plan = plan_sequence(load_sequence(seq), progress=lambda *a: seen.append(a))
+    plan.mask_exposure
+    stages = [s for s, _, _ in seen]
+    assert stages[0] == "holograms" and "exposure" in stages and "mask exposure" in stages
+    done, total = max((d, t) for s, d, t in seen if s == "holograms")
+    assert done == total > 0
+    assert all(t == 0 for s, _, t in seen if s != "holograms")  # unknown in advance
+    assert main(["check", str(seq)]) == 0
+    assert capsys.readouterr().err == ""  # stderr is not a terminal here

@@ -189,7 +189,7 @@ def test_protocol_cap_can_only_add_restrictions():
     assert res.protocol.peak_ratio == pytest.approx(8.0 / 5.0)
     assert res.verdict == "above"
     # a loose cap never relaxes the standard
-    loose = ex.ProtocolCap(1e6, 1e6)
+    loose = ex.ProtocolCap(1e4, 1e4)
     hot = ex.assess_sequence(
         [ex.Frame(np.full(grid.shape, 500.0), pulses)], grid, 880.0, protocol=loose
     )

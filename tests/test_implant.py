@@ -314,13 +314,13 @@ def test_presets():
 # -- validation -------------------------------------------------------------------------------
 
 
-@pytest.mark.parametrize("pitch", [0.0, -5.0])
+@pytest.mark.parametrize("pitch", [0.0, -5.0, 1e-9, 1e9])
 def test_bad_pitch(pitch):
-    # common practice
+    # common practice: no implant pixel is under 1 µm or over 5 mm
     with pytest.raises(ConfigError) as err:
         Implant(pitch_um=pitch, rings=2, active_fraction=0.5)
     assert err.value.field == "implant.pitch_um"
-    assert "> 0" in str(err.value)
+    assert "in [1, 5000]" in str(err.value) and "implant pixels" in str(err.value)
 
 
 @pytest.mark.parametrize("frac", [0.0, -0.1, 1.2])

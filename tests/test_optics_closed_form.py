@@ -102,7 +102,7 @@ def test_pixel_aperture_envelope_is_sinc_squared():
             SLM(n, n, 8.0, ff, 256),
             Illumination(880.0, 1.0, "file", amplitude_file=str(path)),
             Relay(1.0),
-            Eye(288.0, 50.0, 1.0),
+            Eye(288.0, 20.0, 1.0),
         )
         pred = predict_retina(np.zeros((n, n)), system, oversample=2)
     r0, c0 = pred.grid.centre_index

@@ -906,3 +906,66 @@ def test_pathological_nesting_is_refused_quickly():
     # dots inside strings do not count
     text = _mutate(BASE, 'title = "test session (demo values)"', f'title = "{"." * 1000}"')
     assert parse_sequence(text).title == "." * 1000
+
+
+# common practice: every physical input has a finite, physical range, and the message
+# gives the range and its reason (the four values are the cases of a malformed-input trial).
+IMPLAUSIBLE = [
+    ("power_mw = 12.0", "power_mw = 1e300", "optics.laser.power_mw", "(0, 10000]", "phase SLM"),
+    (
+        "magnification = 0.25",
+        "magnification = 1e12",
+        "optics.relay.magnification",
+        "[0.001, 1000]",
+        "relay",
+    ),
+    (
+        'preset = "rat_55um"',
+        "pitch_um = 55.0\ndiameter_um = 1e9\nactive_fraction = 0.5",
+        "implant.diameter_um",
+        "(0, 100000]",
+        "no retina",
+    ),
+    ("pitch_um = 8.0", "pitch_um = 1e-9", "optics.slm.pitch_um", "[1, 200]", "SLM"),
+    (
+        "duration_ms = 1000\npulse_ms = 10\nrate_hz = 20\npower_mw = 4.0",
+        "duration_ms = 1e12\npulse_ms = 10\nrate_hz = 20\npower_mw = 4.0",
+        "steps[0].duration_ms",
+        "(0, 3e+07]",
+        "3e4 s",
+    ),
+    (
+        "pulse_ms = 10\nrate_hz = 20\npower_mw = 4.0",
+        "pulse_ms = 1e-9\nrate_hz = 20\npower_mw = 4.0",
+        "steps[0].pulse_ms",
+        "[1e-06, 3e+07]",
+        "1 ns",
+    ),
+    ("waist_mm = 0.5", "waist_mm = 1e-7", "optics.laser.waist_mm", "[0.001, 1000]", "beam"),
+    (
+        'preset = "rat"',
+        "um_per_deg = 1e6\npupil_diameter_mm = 4.5",
+        "eye.um_per_deg",
+        "[5, 2000]",
+        "mouse",
+    ),
+    (
+        "peak_irradiance_mw_per_mm2 = 5.0",
+        "peak_irradiance_mw_per_mm2 = 1e9",
+        "limits.peak_irradiance_mw_per_mm2",
+        "(0, 10000]",
+        "exposure limit",
+    ),
+    ("check_um = 110.0", "check_um = 1e7", "stimuli.checks.check_um", "(0, 100000]", "no retina"),
+]
+
+
+@pytest.mark.parametrize(
+    ("old", "new", "path", "allowed", "why"), IMPLAUSIBLE, ids=[c[2] for c in IMPLAUSIBLE]
+)
+def test_implausible_physical_values_are_refused_at_their_key(old, new, path, allowed, why):
+    err = _errors(_mutate(BASE, old, new))
+    hit = [e for e in err.errors if e.field == path]
+    assert hit, f"{path} not in {[e.field for e in err.errors]}"
+    assert allowed in hit[0].allowed and why in hit[0].detail, str(hit[0])
+    assert hit[0].line is not None  # the line of the key the user wrote

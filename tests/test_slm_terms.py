@@ -52,7 +52,7 @@ def _system(tmp_path=None, correction=None, fresnel=None, z=0.0):
         SLM(n, n, 8.0, 1.0, 256, zero_order_fraction=z),
         Illumination(880.0, 1.0, "flat", correction_phase_file=corr_file),
         Relay(1.0, fresnel_focal_mm=fresnel),
-        Eye(288.0, 50.0, 1.0),
+        Eye(288.0, 20.0, 1.0),
     )
 
 

@@ -335,14 +335,17 @@ def compute_stimulus(
     """
     from stimplan.errors import ConfigError
     from stimplan.plan import REFERENCE_POWER_MW, plan_sequence
+    from stimplan.plan.memory import check_memory
 
     spec, power = _one_step_spec(request)
     cb = None
     if progress is not None:
 
         def cb(stage: str, done: int, total: int) -> None:
-            progress(done, total)
+            if stage == "holograms":  # the exposure stages have no known total
+                progress(done, total)
 
+    check_memory(spec)
     plan = plan_sequence(spec, progress=cb or False)
     if not plan.holograms:
         raise ConfigError("stimulus", request.kind, "a stimulus that lights something")

@@ -99,12 +99,14 @@ def read_sequence(path) -> list[tuple]:
     Warnings (limits exceeded, a clipped beam) are shown to the user.
     """
     from stimplan.plan import plan_sequence
+    from stimplan.plan.memory import check_memory
     from stimplan.sequence import load_sequence
 
     from ._readout import announce
 
     p = _one_path(path)
     spec = load_sequence(p)
+    check_memory(spec)
     plan = plan_sequence(spec, progress=True)
     announce(plan)
     layers = plan_layers(plan)

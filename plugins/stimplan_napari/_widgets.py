@@ -620,10 +620,17 @@ class SequencePanel(Container):
 
 def _plan_file(path: str, progress: Callable[[int, int], None]):
     from stimplan.plan import plan_sequence
+    from stimplan.plan.memory import check_memory
     from stimplan.sequence import load_sequence
 
     spec = load_sequence(path)
-    return plan_sequence(spec, progress=lambda stage, done, total: progress(done, total))
+    check_memory(spec)
+
+    def holograms_only(stage: str, done: int, total: int) -> None:
+        if stage == "holograms":  # the exposure stages have no known total
+            progress(done, total)
+
+    return plan_sequence(spec, progress=holograms_only)
 
 
 # -- exposure and efficiency ---------------------------------------------------------------

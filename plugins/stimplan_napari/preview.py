@@ -48,9 +48,11 @@ def preview(path: str | os.PathLike[str], close_after_load: bool = False) -> int
     from qtpy.QtWidgets import QApplication
 
     from stimplan.plan import plan_sequence
+    from stimplan.plan.memory import check_memory
     from stimplan.sequence import load_sequence
 
     spec = load_sequence(path)
+    check_memory(spec)
     plan = plan_sequence(spec, progress=True)
     viewer = napari.Viewer(title=f"stimplan preview: {spec.title}", show=not close_after_load)
     try:

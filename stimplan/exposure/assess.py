@@ -32,7 +32,7 @@ References
 from __future__ import annotations
 
 import math
-from collections.abc import Iterable, Sequence
+from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass, field, replace
 from typing import Any
 
@@ -354,8 +354,9 @@ class _MapSweep:
     sums each lit map's discs exactly at chosen centres.
     """
 
-    def __init__(self, groups, grid, weight_s, max_scale, overlap, cache):
+    def __init__(self, groups, grid, weight_s, max_scale, overlap, cache, progress=None):
         self.groups, self.grid, self.cache = groups, grid, cache
+        self.progress = progress
         self.weight_s, self.max_scale, self.overlap = weight_s, max_scale, overlap
         self.dose = np.zeros(grid.shape, dtype=np.float64)
         self.peak = np.zeros(grid.shape, dtype=np.float64)
@@ -401,6 +402,8 @@ class _MapSweep:
                     err = integ.error_bound_mw(l1, l2, d)
                     value = max(exact, _sample_bound(pm, prepared, d, err))
                 cache[(key, g.shape, g.pitch_x_um, g.pitch_y_um, d)] = (r, c, value)
+                if self.progress is not None:
+                    self.progress()
         return [cache[t] for t in tags]
 
     def maxima(self, diameters: Sequence[float]) -> dict[int, list[tuple[int, int, float]]]:
@@ -464,6 +467,7 @@ def assess_sequence(
     subject: str | None = None,
     maxima_cache: dict | None = None,
     tolerance: float = ANGLE_TOLERANCE,
+    progress: Callable[[], None] | None = None,
 ) -> ExposureAssessment:
     """Assess a sequence of frames against the retinal limits (varying acceptance angle).
 
@@ -492,6 +496,9 @@ def assess_sequence(
     tolerance : float
         Largest relative gap between the bound over an angle interval and the
         values at its ends (default 1 %).
+    progress : callable, optional
+        Called with no argument after each disc-power map is computed (their
+        number is not known in advance).
 
     Returns
     -------
@@ -535,7 +542,7 @@ def assess_sequence(
     group_of = np.empty(n_f, dtype=np.int64)
     for gi, g in enumerate(groups):
         group_of[g.frames] = gi
-    sweep = _MapSweep(groups, grid, weight_s, max_scale, overlap, maxima_cache)
+    sweep = _MapSweep(groups, grid, weight_s, max_scale, overlap, maxima_cache, progress)
     sweep.accumulate()
     dose, peak = sweep.dose, sweep.peak
     notes: list[str] = []

@@ -148,7 +148,7 @@ class ProtocolCap:
             val = getattr(self, name)
             if val is not None:
                 object.__setattr__(
-                    self, name, validate.number(f"protocol.{name}", val, lo=0.0, lo_open=True)
+                    self, name, validate.physical(f"protocol.{name}", val, "irradiance_mw_per_mm2")
                 )
 
 

@@ -90,7 +90,7 @@ def check_size(implant: Any) -> None:
         )
     for k in ("diameter_um", "width_um", "height_um"):
         if k in given:
-            f(implant, k, validate.number(f"implant.{k}", given[k], lo=0, lo_open=True))
+            f(implant, k, validate.physical(f"implant.{k}", given[k], "retinal_length_um"))
     for k in ("rows", "cols"):
         if k in given:
             f(implant, k, validate.integer(f"implant.{k}", given[k], lo=1, hi=MAX_IMPLANT_PIXELS))
@@ -176,7 +176,7 @@ def active_support_um(implant: Any, normals: np.ndarray) -> np.ndarray:
 def check_fields(implant: Any) -> None:
     """Check every field of an implant (storing the validated values); raise ConfigError."""
     f = object.__setattr__
-    pitch = validate.number("implant.pitch_um", implant.pitch_um, lo=0, lo_open=True)
+    pitch = validate.physical("implant.pitch_um", implant.pitch_um, "implant_pitch_um")
     f(implant, "pitch_um", pitch)
     f(implant, "layout", validate.choice("implant.layout", implant.layout, LAYOUTS))
     f(implant, "outline", validate.choice("implant.outline", implant.outline, OUTLINES))

@@ -15,6 +15,7 @@ from ..exposure import (
     ExposureAssessment,
 )
 from ..metrics import PatternMetrics
+from .progress import stage_ticker
 from .spool import (
     Spooled,
     spooled_value,
@@ -185,14 +186,32 @@ class Plan:
     timings_s: dict = field(default_factory=dict)
     #: Largest disc powers of the plan's maps, shared by its exposure assessments.
     maxima_cache: dict = field(default_factory=dict, repr=False)
+    #: ``progress(stage, done, total)`` for the assessments run on first use, or None.
+    progress: object = field(default=None, repr=False, compare=False)
+
+    def _assess(self, stage: str, frames, which: str, power_of=None):
+        """Assess ``frames`` through ``which`` with the plan's cache, reporting ``stage``."""
+        wl = self.spec.system.illumination.wavelength_nm
+        try:
+            return assess_frames(
+                frames,
+                self.stimuli,
+                which,
+                wl,
+                self.spec,
+                power_of=power_of,
+                cache=self.maxima_cache,
+                progress=stage_ticker(self.progress, stage),
+            )
+        finally:
+            close = getattr(self.progress, "close", None)
+            if close is not None:
+                close()
 
     @cached_property
     def mask_exposure(self) -> ExposureAssessment | None:
         """The timeline through the amplitude mask at the same laser powers."""
-        wl = self.spec.system.illumination.wavelength_nm
-        return assess_frames(
-            self.frames, self.stimuli, "mask", wl, self.spec, cache=self.maxima_cache
-        )
+        return self._assess("mask exposure", self.frames, "mask")
 
     @cached_property
     def mask_exposure_equal_irradiance(self) -> ExposureAssessment | None:
@@ -201,15 +220,8 @@ class Plan:
         without an implant."""
         if self.spec.implant is None:
             return None
-        wl = self.spec.system.illumination.wavelength_nm
-        return assess_frames(
-            self.frames,
-            self.stimuli,
-            "mask",
-            wl,
-            self.spec,
-            power_of=self.mask_power_for,
-            cache=self.maxima_cache,
+        return self._assess(
+            "mask exposure, equal irradiance", self.frames, "mask", self.mask_power_for
         )
 
     @cached_property
@@ -218,11 +230,10 @@ class Plan:
         if len(self.holograms) == 1:
             only = self.holograms[0].hologram_index
             return {} if self.exposure is None else {only: self.exposure}
-        wl = self.spec.system.illumination.wavelength_nm
         out = {}
         for sp in self.holograms:
             own = [f for f in self.frames if f.hologram_index == sp.hologram_index]
-            a = assess_frames(own, self.stimuli, "hologram", wl, self.spec, cache=self.maxima_cache)
+            a = self._assess(f"exposure of {sp.name}", own, "hologram")
             if a is not None:
                 out[sp.hologram_index] = a
         return out

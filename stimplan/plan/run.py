@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import sys
 import tempfile
 import threading
 import time
@@ -14,6 +13,7 @@ from ..errors import ConfigError
 from ..sequence import expand_timeline
 from .jobs import plan_jobs, task_function
 from .model import FramePlan, Plan, StimulusPlan
+from .progress import TerminalProgress, stage_ticker
 from .spool import (
     BYTES_PER_SLM_PIXEL,
     MEMORY_BUDGET_MB,
@@ -40,8 +40,10 @@ def plan_sequence(
     spec : SequenceSpec
         From :func:`stimplan.sequence.load_sequence`.
     progress : bool or callable
-        ``True``: a tqdm bar on stderr; ``False``: silent; a callable is
-        called as ``progress(stage, done, total)``.
+        ``True``: a tqdm bar per stage on stderr (quiet when stderr is not a
+        terminal); ``False``: silent; a callable is called as
+        ``progress(stage, done, total)`` (:mod:`stimplan.plan.progress`), also
+        by the assessments the plan runs later on first use.
     reuse : bool
         Reuse holograms of translated stimuli (see :func:`plan_jobs`).
     scheduler : None, str or distributed.Client
@@ -75,29 +77,16 @@ def plan_sequence(
     iters = spec.ifta.iterations
     warm_iters = max(10, iters // 2)
     total = sum({"fresh": iters, "warm": warm_iters}.get(j.kind, 0) for j in jobs) + len(jobs)
-    bar = None
-    cb = progress if callable(progress) else None
-    if progress is True:
-        from tqdm import tqdm
-
-        bar = tqdm(
-            total=total,
-            desc="holograms",
-            unit="step",
-            file=sys.stderr,
-            leave=False,
-            disable=None,
-        )
+    terminal = TerminalProgress() if progress is True else None
+    report = terminal if terminal is not None else (progress if callable(progress) else None)
     done = [0]
     lock = threading.Lock()
 
     def tick(_i=None):
         with lock:
             done[0] += 1
-            if bar is not None:
-                bar.update(1)
-            if cb is not None:
-                cb("holograms", done[0], total)
+            if report is not None:
+                report("holograms", done[0], total)
 
     local = scheduler is None or scheduler in ("serial", "threads", "sync")
     it_tick = tick if local else None  # progress cannot travel to remote workers
@@ -132,9 +121,10 @@ def plan_sequence(
     t_start = time.perf_counter()
     try:
         batch = run_batch(tasks, scheduler=scheduler, on_done=tick)
-    finally:
-        if bar is not None:
-            bar.close()
+    except BaseException:
+        if terminal is not None:
+            terminal.close()
+        raise
     results = [batch[position[i]] for i in range(len(jobs))]
     plans: dict[str, StimulusPlan] = {}
     for job, sp in zip(jobs, results, strict=True):
@@ -145,9 +135,22 @@ def plan_sequence(
     frames = tuple(resolve_frame(fr, spec, plans) for fr in frames_spec)
     wl = spec.system.illumination.wavelength_nm
     cache: dict = {}
-    exposure = with_orders_note(
-        assess_frames(frames, plans, "hologram", wl, spec, cache=cache), ordered
-    )
+    try:
+        exposure = with_orders_note(
+            assess_frames(
+                frames,
+                plans,
+                "hologram",
+                wl,
+                spec,
+                cache=cache,
+                progress=stage_ticker(report, "exposure"),
+            ),
+            ordered,
+        )
+    finally:
+        if terminal is not None:
+            terminal.close()
     timings = {"holograms": t_holograms, "exposure": time.perf_counter() - t_start - t_holograms}
     return Plan(
         spec,
@@ -158,6 +161,7 @@ def plan_sequence(
         spool=spool_dir,
         timings_s=timings,
         maxima_cache=cache,
+        progress=report,
     )
 
 

@@ -21,12 +21,15 @@ from .spool import (
 __all__ = ["assess_frames", "orders_margin", "with_orders_note"]
 
 
-def assess_frames(frames, plans, which: str, wavelength_nm: float, spec, power_of=None, cache=None):
+def assess_frames(
+    frames, plans, which: str, wavelength_nm: float, spec, power_of=None, cache=None, progress=None
+):
     """Exposure of the timeline.
 
     Each hologram is one (lazily read) map at 1 mW; every pulse carries its
     frame's laser power (or ``power_of(frame)``) as its scale, so frames of one
     hologram at any powers share one map and the maps are read one at a time.
+    ``progress`` is called once per disc map computed.
     """
     pulses_of: dict[int, list] = {}
     by_index = {p.hologram_index: p for p in plans.values()}
@@ -79,6 +82,7 @@ def assess_frames(frames, plans, which: str, wavelength_nm: float, spec, power_o
         protocol=spec.protocol,
         subject=spec.system.eye.name,
         maxima_cache=cache,
+        progress=progress,
     )
 
 

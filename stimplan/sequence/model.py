@@ -55,19 +55,16 @@ def check_step_values(prefix: str, d: Mapping[str, Any], errors: list[ConfigErro
         except Exception as exc:
             errors.append(ConfigError(f"{prefix}.{name}", d[name], "a number", str(exc)))
 
-    def positive(f: str, x: Any) -> float:
-        return validate.number(f, x, lo=0, lo_open=True)
-
-    for name in (
-        "duration_ms",
-        "pulse_ms",
-        "rate_hz",
-        "power_mw",
-        "irradiance_mw_per_mm2",
-        "alternate_ms",
+    for name, quantity in (
+        ("duration_ms", "duration_ms"),
+        ("pulse_ms", "pulse_ms"),
+        ("rate_hz", "rate_hz"),
+        ("power_mw", "laser_power_mw"),
+        ("irradiance_mw_per_mm2", "irradiance_mw_per_mm2"),
+        ("alternate_ms", "duration_ms"),
+        ("blank_after_ms", "blank_ms"),
     ):
-        take(name, positive)
-    take("blank_after_ms", lambda f, x: validate.number(f, x, lo=0))
+        take(name, lambda f, x, q=quantity: validate.physical(f, x, q))
     take("repeat", lambda f, x: validate.integer(f, x, lo=1, hi=MAX_FRAMES))
     take("irradiance_basis", lambda f, x: validate.choice(f, x, IRRADIANCE_BASES))
     pulse, rate = out.get("pulse_ms"), out.get("rate_hz")

@@ -85,7 +85,7 @@ def _make_eye(**kw: Any) -> Eye:
             raise ConfigError(
                 "eye.focal_length_mm", fl, "either um_per_deg or focal_length_mm, not both"
             )
-        kw["um_per_deg"] = validate.number("eye.focal_length_mm", fl, lo=0, lo_open=True) * (
+        kw["um_per_deg"] = validate.physical("eye.focal_length_mm", fl, "eye_focal_length_mm") * (
             1e3 * math.pi / 180.0
         )
     if preset is not None:

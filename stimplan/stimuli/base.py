@@ -210,8 +210,13 @@ class Figure(Stimulus):
         f = object.__setattr__
         f(self, "contrast", validate.number(f"{k}.contrast", self.contrast, lo=0.0, hi=1.0))
         f(self, "polarity", validate.choice(f"{k}.polarity", self.polarity, POLARITIES))
-        for name in ("center_x_um", "center_y_um", "rotation_deg"):
-            f(self, name, validate.number(f"{k}.{name}", getattr(self, name)))
+        for name in ("center_x_um", "center_y_um"):
+            f(
+                self,
+                name,
+                validate.physical(f"{k}.{name}", getattr(self, name), "retinal_position_um"),
+            )
+        f(self, "rotation_deg", validate.number(f"{k}.rotation_deg", self.rotation_deg))
 
     # -- levels ---------------------------------------------------------------
     @property
@@ -340,8 +345,8 @@ def _dilate(mask: np.ndarray) -> np.ndarray:
 
 
 def positive(kind: str, name: str, value: Any) -> float:
-    """Validate a strictly positive number, with the field path ``kind.name``."""
-    return validate.number(f"{kind}.{name}", value, lo=0.0, lo_open=True)
+    """A retinal length in µm: positive and within its plausibility range (``kind.name``)."""
+    return validate.physical(f"{kind}.{name}", value, "retinal_length_um")
 
 
 def build_stimulus(
