@@ -236,7 +236,7 @@ def test_progress_reports_every_stage_and_is_quiet_off_a_terminal(seq, capsys):
 
     seen = []
     plan = plan_sequence(load_sequence(seq), progress=lambda *a: seen.append(a))
-    plan.mask_exposure
+    assert plan.mask_exposure is not None  # run on first use
     stages = [s for s, _, _ in seen]
     assert stages[0] == "holograms" and "exposure" in stages and "mask exposure" in stages
     done, total = max((d, t) for s, d, t in seen if s == "holograms")
