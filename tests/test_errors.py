@@ -16,8 +16,8 @@ from .conftest import make_system
 @pytest.mark.parametrize(
     ("kwargs", "field", "allowed"),
     [
-        ({"pitch_um": 0.0}, "slm.pitch_um", "> 0"),
-        ({"pitch_um": -8.0}, "slm.pitch_um", "> 0"),
+        ({"pitch_um": 0.0}, "slm.pitch_um", "in [1, 200]"),
+        ({"pitch_um": -8.0}, "slm.pitch_um", "in [1, 200]"),
         ({"fill_factor": 1.2}, "slm.fill_factor", "(0, 1]"),
         ({"phase_levels": 1}, "slm.phase_levels", "[2, 65536]"),
         ({"zero_order_fraction": 1.0}, "slm.zero_order_fraction", "[0, 1)"),
