@@ -8,6 +8,7 @@ is allowed, so that the command line and the GUI can show one precise line.
 
 from __future__ import annotations
 
+import math
 from typing import Any
 
 __all__ = [
@@ -97,7 +98,18 @@ def _short_repr(value: Any) -> str | None:
             return f"array(shape={value.shape}, dtype={value.dtype})"
     except ImportError:  # pragma: no cover - numpy is a hard dependency
         pass
-    text = repr(value)
+    try:
+        text = repr(value)
+    except (ValueError, RecursionError):  # an integer of thousands of digits, deep nesting
+        text = _unprintable(value)
     if len(text) > 80:
         text = text[:77] + "..."
     return text
+
+
+def _unprintable(value: Any) -> str:
+    """A short description of a value that ``repr`` refuses."""
+    if isinstance(value, int):
+        digits = int(abs(value).bit_length() * math.log10(2)) + 1
+        return f"<integer of about {digits} digits>"
+    return f"<{type(value).__name__} nested too deep to show>"

@@ -61,7 +61,10 @@ def number(
     allowed = _interval_text(lo, hi, lo_open, hi_open)
     if not _is_real(value):
         raise ConfigError(field, value, f"a real number {allowed}".strip())
-    x = float(value)
+    try:
+        x = float(value)
+    except OverflowError:  # an integer beyond the float range
+        x = math.inf
     if not math.isfinite(x):
         raise ConfigError(field, value, f"a finite number {allowed}".strip())
     if lo is not None and (x < lo or (lo_open and x == lo)):

@@ -18,6 +18,7 @@ __all__ = [
     "PARTNER_SUFFIXES",
     "MAX_LISTED_ERRORS",
     "MAX_DOTS_PER_LINE",
+    "MAX_NESTING",
     "SEED_MAX",
     "NAME_RE",
     "PIECE_TOL_MS",
@@ -70,6 +71,11 @@ MAX_LISTED_ERRORS = 200
 #: Most ``.`` outside strings on one line. Deeply dotted keys cost the TOML
 #: reader time quadratic in their depth; no sequence needs more than a few.
 MAX_DOTS_PER_LINE = 256
+
+
+#: Deepest nesting of tables and arrays (the TOML reader and the stimulus builders
+#: recurse once per level; no sequence needs more than a few).
+MAX_NESTING = 32
 
 
 SEED_MAX = 2**63 - 1

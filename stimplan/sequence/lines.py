@@ -13,9 +13,10 @@ from collections.abc import Mapping
 from ..errors import ConfigError
 from .keys import (
     MAX_DOTS_PER_LINE,
+    MAX_NESTING,
 )
 
-__all__ = ["key_parts", "LineIndex", "dotted_line", "syntax_error"]
+__all__ = ["key_parts", "LineIndex", "dotted_line", "nested_line", "syntax_error"]
 
 
 _KEY_ATOM = r"(?:[A-Za-z0-9_-]+|\"(?:[^\"\\]|\\.)*\"|'[^']*')"
@@ -135,6 +136,29 @@ def dotted_line(text: str) -> tuple[int, int] | None:
             n = _STRING_LITERAL.sub("", line).count(".")
             if n > MAX_DOTS_PER_LINE:
                 return no, n
+    return None
+
+
+# Strings and comments (skipped), and the brackets and braces that open or close a value.
+_NESTING_TOKEN = re.compile(
+    r'"""[\s\S]*?"""|\'\'\'[\s\S]*?\'\'\'|"(?:[^"\\\n]|\\.)*"|\'[^\'\n]*\'|#[^\n]*|[\[\]{}]'
+)
+
+
+def nested_line(text: str) -> tuple[int, int] | None:
+    """``(line, depth)`` where arrays and inline tables first nest deeper than
+    :data:`MAX_NESTING` (brackets and braces outside strings and comments), else None."""
+    if text.count("[") + text.count("{") <= MAX_NESTING:
+        return None
+    depth = 0
+    for m in _NESTING_TOKEN.finditer(text):
+        tok = m.group(0)
+        if tok in ("[", "{"):
+            depth += 1
+            if depth > MAX_NESTING:
+                return text.count("\n", 0, m.start()) + 1, depth
+        elif tok in ("]", "}"):
+            depth = max(depth - 1, 0)
     return None
 
 

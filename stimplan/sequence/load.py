@@ -20,12 +20,13 @@ from .keys import (
     MASK_KEYS,
     MAX_DOTS_PER_LINE,
     MAX_FILE_BYTES,
+    MAX_NESTING,
     SEED_MAX,
     TOP_KEYS,
 )
-from .lines import LineIndex, dotted_line, syntax_error
+from .lines import LineIndex, dotted_line, nested_line, syntax_error
 from .model import SequenceSpec
-from .report import ErrorReport, SequenceError, build_collecting, rebase_path
+from .report import ErrorReport, SequenceError, build_collecting, key_text, rebase_path
 from .sections import (
     make_limits,
     make_mask,
@@ -149,6 +150,21 @@ def parse_sequence(
             ],
             source,
         )
+    nested = nested_line(text)
+    if nested is not None:
+        no, depth = nested
+        raise SequenceError(
+            [
+                ConfigError(
+                    index.table_at(no) or "sequence",
+                    None,
+                    f"arrays and inline tables nested at most {MAX_NESTING} deep",
+                    f"{depth} levels open on this line",
+                    line=no,
+                )
+            ],
+            source,
+        )
     try:
         raw = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
@@ -186,6 +202,12 @@ def _from_raw(
     source: str | None,
 ) -> SequenceSpec:
     report = ErrorReport(index)
+    deep = _too_deep(raw)
+    if deep is not None:
+        report.add(
+            deep, None, f"tables and arrays nested at most {MAX_NESTING} deep", "nested deeper"
+        )
+        raise SequenceError(report.errors, source)
     try:
         base = Path(base_dir) if base_dir is not None else None
         spec = _assemble(report, raw, base, source)
@@ -197,6 +219,23 @@ def _from_raw(
     if report.errors or spec is None:
         raise SequenceError(report.errors, source)
     return spec
+
+
+def _too_deep(raw: Mapping[str, Any]) -> str | None:
+    """Key path of the first table or array nested deeper than :data:`MAX_NESTING`."""
+    stack: list[tuple[str, Any, int]] = [("", raw, 1)]
+    while stack:
+        path, node, depth = stack.pop()
+        if depth > MAX_NESTING:
+            return path
+        if isinstance(node, Mapping):
+            for key, val in node.items():
+                name = key_text(key)
+                stack.append((f"{path}.{name}" if path else name, val, depth + 1))
+        elif isinstance(node, (list, tuple)):
+            for i, val in enumerate(node):
+                stack.append((f"{path}[{i}]", val, depth + 1))
+    return None
 
 
 def _assemble(

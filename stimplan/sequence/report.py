@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import json
 import re
 from collections.abc import Callable, Mapping, Sequence
 from typing import Any
@@ -9,10 +10,11 @@ from typing import Any
 from ..errors import ConfigError, StimplanError
 from .keys import (
     MAX_LISTED_ERRORS,
+    NAME_RE,
 )
 from .lines import LineIndex
 
-__all__ = ["SequenceError", "ErrorReport", "rebase_path", "build_collecting"]
+__all__ = ["SequenceError", "ErrorReport", "key_text", "rebase_path", "build_collecting"]
 
 
 class SequenceError(ConfigError):
@@ -79,8 +81,9 @@ class ErrorReport:
     def unknown_keys(self, table: Mapping[str, Any], path: str, allowed: Sequence[str]) -> None:
         for key in table:
             if key not in allowed:
+                name = key_text(key)
                 self.add(
-                    f"{path}.{key}" if path else str(key),
+                    f"{path}.{name}" if path else name,
                     table[key],
                     "a key among " + ", ".join(allowed),
                     "unknown key",
@@ -95,6 +98,12 @@ class ErrorReport:
             self.add(path, val, "a table")
             return None
         return val
+
+
+def key_text(key: Any) -> str:
+    """A key as written in a key path: bare when TOML allows it, else quoted (``"a b"``)."""
+    text = str(key)
+    return text if NAME_RE.fullmatch(text) else json.dumps(text, ensure_ascii=False)
 
 
 def rebase_path(path: str, old: str, new: str) -> str:
