@@ -69,7 +69,7 @@ class AmplitudeMask:
         object.__setattr__(
             self,
             "contrast_ratio",
-            validate.number("mask.contrast_ratio", self.contrast_ratio, lo=1),
+            validate.physical("mask.contrast_ratio", self.contrast_ratio, "contrast_ratio"),
         )
         for name in ("field_width_um", "field_height_um"):
             val = getattr(self, name)

@@ -76,6 +76,10 @@ RANGES = MappingProxyType(
         "implant_pitch_um": PhysicalRange(1.0, 5000.0, "implant pixels are tens to hundreds of µm"),
         "retinal_length_um": PhysicalRange(0.0, 1e5, _NO_RETINA, lo_open=True),
         "retinal_position_um": PhysicalRange(-1e5, 1e5, _NO_RETINA),
+        "angle_deg": PhysicalRange(
+            -360.0, 360.0, "one turn either way holds every orientation and phase"
+        ),
+        "contrast_ratio": PhysicalRange(1.0, 1e9, "no projector has a contrast above 10^9:1"),
         "duration_ms": PhysicalRange(0.0, 3e7, _TABLES_END, lo_open=True),
         "blank_ms": PhysicalRange(0.0, 3e7, _TABLES_END),
         "pulse_ms": PhysicalRange(

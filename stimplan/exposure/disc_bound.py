@@ -63,6 +63,8 @@ __all__ = [
     "PreparedMap",
     "DiscMaximum",
     "largest_disc_power",
+    "bound_over_cells",
+    "lune_area_mm2",
     "disc_sums_at",
 ]
 

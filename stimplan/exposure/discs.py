@@ -249,7 +249,10 @@ def max_disc_power(
     alpha_mrad: float,
     eye: EyeModel = HUMAN_EYE,
 ) -> tuple[float, float, float]:
-    """Largest power within a disc of angular diameter alpha anywhere on the map.
+    """Largest power within a disc of angular diameter alpha centred on a sample of the map.
+
+    Only sample centres are searched; :func:`stimplan.exposure.assess_sequence`
+    bounds every centre, also between samples.
 
     Returns
     -------

@@ -195,8 +195,14 @@ def check_fields(implant: Any) -> None:
         "trench_um",
         validate.number("implant.trench_um", implant.trench_um, lo=0.0, hi=pitch, hi_open=True),
     )
-    for name in ("center_x_um", "center_y_um", "rotation_deg"):
-        f(implant, name, validate.number(f"implant.{name}", getattr(implant, name)))
+    for name in ("center_x_um", "center_y_um"):
+        value = getattr(implant, name)
+        f(implant, name, validate.physical(f"implant.{name}", value, "retinal_position_um"))
+    f(
+        implant,
+        "rotation_deg",
+        validate.physical("implant.rotation_deg", implant.rotation_deg, "angle_deg"),
+    )
     if not isinstance(implant.name, str):
         raise ConfigError("implant.name", implant.name, "a string")
     check_size(implant)

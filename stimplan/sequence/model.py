@@ -32,7 +32,10 @@ __all__ = ["pair_um", "check_step_values", "StepSpec", "SequenceSpec"]
 def pair_um(path: str, value: Any) -> tuple[float, float]:
     if not isinstance(value, (list, tuple)) or len(value) != 2:
         raise ConfigError(path, value, "a pair [x, y] of numbers (µm)")
-    return (validate.number(f"{path}[0]", value[0]), validate.number(f"{path}[1]", value[1]))
+    return (
+        validate.physical(f"{path}[0]", value[0], "retinal_position_um"),
+        validate.physical(f"{path}[1]", value[1], "retinal_position_um"),
+    )
 
 
 def _whole(total_ms: float, piece_ms: float) -> bool:

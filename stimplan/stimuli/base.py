@@ -216,7 +216,11 @@ class Figure(Stimulus):
                 name,
                 validate.physical(f"{k}.{name}", getattr(self, name), "retinal_position_um"),
             )
-        f(self, "rotation_deg", validate.number(f"{k}.rotation_deg", self.rotation_deg))
+        f(
+            self,
+            "rotation_deg",
+            validate.physical(f"{k}.rotation_deg", self.rotation_deg, "angle_deg"),
+        )
 
     # -- levels ---------------------------------------------------------------
     @property

@@ -135,7 +135,7 @@ class Grating(Figure):
         f = object.__setattr__
         f(self, "period_um", positive(self.kind, "period_um", self.period_um))
         f(self, "waveform", validate.choice("grating.waveform", self.waveform, WAVEFORMS))
-        f(self, "phase_deg", validate.number("grating.phase_deg", self.phase_deg))
+        f(self, "phase_deg", validate.physical("grating.phase_deg", self.phase_deg, "angle_deg"))
         f(
             self,
             "duty_cycle",

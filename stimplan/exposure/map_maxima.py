@@ -1,0 +1,149 @@
+"""The largest disc power of one map, bounded over every centre.
+
+A map is uniform within each sample. Its FFT disc-power map gives the disc
+power at every sample centre (within a proven round-off bound); a centre
+anywhere in a sample's cell is within half the cell's diagonal of the sample,
+so the disc grown by that diagonal bounds it. Where the grown disc is loose,
+the cells that may hold more are searched by branch and bound.
+
+References
+----------
+.. [1] A. H. Land and A. G. Doig, "An automatic method of solving discrete
+   programming problems", Econometrica 28, 497-520 (1960) (branch and bound).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable
+
+import numpy as np
+
+from ..grid import RetinalGrid
+from .disc_bound import PreparedMap, bound_over_cells, disc_sums_at, lune_area_mm2
+
+__all__ = [
+    "CENTRE_TOLERANCE",
+    "MAX_CANDIDATES",
+    "centre_slack_um",
+    "bound_between_samples",
+    "sums_at_samples",
+    "sample_bound",
+]
+
+#: Samples summed exactly at most, to settle a maximum the FFT round-off leaves open.
+MAX_CANDIDATES = 4096
+#: Gap between the bound over every centre and the value found that is refined away.
+CENTRE_TOLERANCE = 0.009
+#: Cells at most, and squares at most, that the refinement between samples may take per
+#: map and diameter; beyond them the (looser, still valid) dilated bound is kept.
+REFINE_CELLS = 512
+REFINE_SQUARES = 20_000
+
+
+def centre_slack_um(grid: RetinalGrid) -> float:
+    """Growth of a disc's diameter that covers every centre of a sample's cell.
+
+    A centre anywhere in the cell of sample ``c0`` is within half the cell's
+    diagonal of ``c0``, so its disc lies inside the disc about ``c0`` whose
+    diameter is larger by the whole diagonal.
+    """
+    return math.hypot(grid.pitch_x_um, grid.pitch_y_um)
+
+
+def bound_between_samples(
+    pm: np.ndarray,
+    prepared: PreparedMap,
+    diameter_um: float,
+    *,
+    slack_um: float,
+    err_mw: float,
+    found_mw: float,
+    row: int,
+    col: int,
+    plain_map: Callable[[], tuple[np.ndarray, float]] | None = None,
+) -> tuple[float, bool]:
+    """Bound over every centre (not only samples) of the disc power at ``diameter_um``.
+
+    Parameters
+    ----------
+    pm : ndarray
+        FFT disc-power map (mW) at ``diameter_um + slack_um``, each value within
+        ``err_mw``; so ``max(pm) + err_mw`` bounds every centre.
+    prepared : PreparedMap
+        The same map, for exact sums.
+    diameter_um : float
+        The disc diameter on the retina.
+    slack_um : float
+        :func:`centre_slack_um` of the map's grid.
+    err_mw : float
+        Round-off bound of ``pm``.
+    found_mw : float
+        The exact disc power at sample ``(row, col)``.
+    plain_map : callable, optional
+        Returns the FFT disc-power map at ``diameter_um`` itself and its round-off
+        bound. Used when too many cells are open for the branch and bound: moving
+        a centre by up to half a diagonal swaps two lunes of equal area, so the
+        largest sample value plus (largest - smallest irradiance) x lune bounds
+        every centre (exact on a plateau, where the grown disc is loosest).
+
+    Returns
+    -------
+    bound_mw : float
+        Where the grown-disc bound is more than :data:`CENTRE_TOLERANCE` above
+        ``found_mw``, the cells that may hold a larger value are searched by
+        branch and bound (:func:`~stimplan.exposure.disc_bound.bound_over_cells`).
+    tight : bool
+        False if that search stopped at its budget (the bound still holds).
+    """
+    d, err, found = diameter_um, err_mw, found_mw
+    dilated = sample_bound(pm, prepared, d + slack_um, err)
+    if dilated <= (1.0 + CENTRE_TOLERANCE) * found:
+        return dilated, True
+    thr = (1.0 + CENTRE_TOLERANCE) * found - err
+    open_ = pm >= thr
+    n_open = int(np.count_nonzero(open_))
+    if n_open > REFINE_CELLS:
+        if plain_map is None:
+            return dilated, False
+        plain, plain_err = plain_map()
+        spread = prepared.peak - float(prepared.irradiance.min())
+        lune = float(plain.max()) + plain_err + spread * lune_area_mm2(slack_um / 2.0, d / 2.0)
+        bound = min(dilated, lune)
+        return bound, bound <= (1.0 + CENTRE_TOLERANCE) * found
+    rr, cc = np.nonzero(open_)
+    res = bound_over_cells(
+        prepared,
+        d / 2.0,
+        rr,
+        cc,
+        found_mw=found,
+        x_um=col * prepared.pitch_x_um,
+        y_um=row * prepared.pitch_y_um,
+        tol=CENTRE_TOLERANCE * 0.6,
+        max_squares=REFINE_SQUARES,
+    )
+    rest = float(np.max(np.where(open_, -np.inf, pm))) + err if n_open < pm.size else 0.0
+    return min(dilated, max(res.bound_mw, rest, found)), res.complete
+
+
+def sums_at_samples(prepared: PreparedMap, diameter_um: float, rows, cols) -> np.ndarray:
+    """Exact disc sums centred on samples ``(rows, cols)`` (mW for a map in mW/mm^2)."""
+    x = np.asarray(cols, dtype=np.float64) * prepared.pitch_x_um
+    y = np.asarray(rows, dtype=np.float64) * prepared.pitch_y_um
+    return disc_sums_at(prepared, diameter_um / 2.0, x, y)
+
+
+def sample_bound(pm, prepared: PreparedMap, diameter_um: float, err: float) -> float:
+    """Upper bound of the largest disc power over every sample centre.
+
+    Every FFT value is within ``err`` of the exact sum
+    (:meth:`DiscIntegrator.error_bound_mw`), so only samples within ``2 err`` of
+    the FFT maximum can hold the largest exact sum. If they are few, their exact
+    sums settle it; otherwise the FFT maximum plus ``err`` bounds it.
+    """
+    top = float(pm.max())
+    rr, cc = np.nonzero(pm >= top - 2.0 * err)
+    if rr.size > MAX_CANDIDATES:
+        return top + err
+    return float(sums_at_samples(prepared, diameter_um, rr, cc).max())
