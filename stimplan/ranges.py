@@ -86,7 +86,10 @@ RANGES = MappingProxyType(
             1e-6, 3e7, "pulses under 1 ns are outside the supported regime; " + _TABLES_END
         ),
         "rate_hz": PhysicalRange(
-            0.0, 1e9, "pulses under 1 ns are not supported, so no rate above 1 GHz", lo_open=True
+            1e-6,
+            1e9,
+            "below 1e-6 Hz (one pulse in 11 days) there is no train; pulses under 1 ns are "
+            "not supported, so no rate above 1 GHz",
         ),
     }
 )

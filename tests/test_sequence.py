@@ -957,6 +957,21 @@ IMPLAUSIBLE = [
         "exposure limit",
     ),
     ("check_um = 110.0", "check_um = 1e7", "stimuli.checks.check_um", "(0, 100000]", "no retina"),
+    # a derived size names the key that was written (common practice)
+    (
+        "bar_width_px = 2",
+        "bar_width_px = 1e9",
+        "stimuli.grating_2px.bar_width_px",
+        "converted size",
+        "no retina",
+    ),
+    (
+        "rate_hz = 20\npower_mw",
+        "rate_hz = 1e-300\npower_mw",
+        "steps[0].rate_hz",
+        "[1e-06, 1e+09]",
+        "no train",
+    ),
 ]
 
 

@@ -53,6 +53,7 @@ __all__ = [
     "levels_from_contrast",
     "check_grid",
     "positive",
+    "as_given",
     "build_stimulus",
 ]
 
@@ -151,6 +152,7 @@ class Stimulus:
         """
         names = cls._field_names()
         p = dict(params)
+        given: dict[str, tuple[str, Any]] = {}  # converted field -> (key written, value)
         for key in list(p):
             if key.endswith("_deg") and key not in _ANGLE_FIELDS and key not in names:
                 target = key[: -len("_deg")] + "_um"
@@ -161,6 +163,7 @@ class Stimulus:
                         )
                     deg = validate.number(f"{cls.kind}.{key}", p.pop(key))
                     p[target] = deg * _eye_scale(eye, f"{cls.kind}.{key}")
+                    given[target] = (key, deg)
         allowed = set(names) | set(cls._alternatives())
         for key in p:
             if key not in allowed:
@@ -170,11 +173,33 @@ class Stimulus:
                     "a parameter among " + ", ".join(sorted(allowed)),
                     "sizes may also be given in degrees as <name>_deg",
                 )
-        return cls._build(p, eye=eye, pitch_um=pitch_um)
+        try:
+            return cls._build(p, eye=eye, pitch_um=pitch_um)
+        except ConfigError as exc:
+            for target, (key, value) in given.items():
+                if exc.field == f"{cls.kind}.{target}":
+                    raise as_given(exc, f"{cls.kind}.{key}", value) from None
+            raise
 
     @classmethod
     def _build(cls, p: dict[str, Any], *, eye: Any, pitch_um: Any) -> Stimulus:
         return cls(**p)
+
+
+def as_given(exc: ConfigError, field: str, value: Any) -> ConfigError:
+    """The error of a derived value, re-named to the key the user wrote.
+
+    A size given as ``diameter_deg`` (or a period as ``bar_width_px``) is checked
+    as the µm value it converts to; the message names the key written, its value
+    and the converted value with its allowed range.
+    """
+    shown = f"{exc.field} = {exc.value:g}" if isinstance(exc.value, float) else exc.field
+    detail = f"it converts to {shown}"
+    if exc.allowed:
+        detail += f", allowed {exc.allowed}"
+    if exc.detail:
+        detail += f" ({exc.detail})"
+    return ConfigError(field, value, "a value whose converted size is in range", detail)
 
 
 def _eye_scale(eye: Eye | float | None, field: str) -> float:

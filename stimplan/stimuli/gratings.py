@@ -28,7 +28,7 @@ from ..acuity import bar_width_um_from_px, period_um_from_cpd
 from ..errors import ConfigError
 from ..grid import RetinalGrid
 from ..system import Eye
-from .base import DEFAULT_SUPERSAMPLE, Figure, check_grid, positive, register
+from .base import DEFAULT_SUPERSAMPLE, Figure, as_given, check_grid, positive, register
 
 __all__ = ["Grating", "Checkerboard", "square_wave_box_mean"]
 
@@ -180,7 +180,18 @@ class Grating(Figure):
                 p.get("period_um"),
                 "exactly one of period_um, period_deg, cycles_per_deg, bar_width_um, bar_width_px",
             )
-        pitch = p.pop("pitch_um", pitch_um)
+        key = sizes[0]
+        value = p[key]
+        try:
+            return cls._build_size(p, eye=eye, pitch_um=p.pop("pitch_um", pitch_um))
+        except ConfigError as exc:
+            if key != "period_um" and exc.field == "grating.period_um":
+                raise as_given(exc, f"grating.{key}", value) from None
+            raise
+
+    @classmethod
+    def _build_size(cls, p: dict[str, Any], *, eye: Any, pitch_um: Any) -> Grating:
+        pitch = pitch_um
         if "cycles_per_deg" in p:
             if eye is None:
                 raise ConfigError(
