@@ -259,6 +259,15 @@ def main(argv: Sequence[str] | None = None) -> int:
         return fail(exc, EXIT_INPUT, _error_lines(exc))
     except KeyboardInterrupt as exc:
         return fail(exc, EXIT_INTERRUPTED, "stimplan: interrupted")
+    except MemoryError as exc:  # the estimate let it through, the machine did not
+        if args.debug:
+            raise
+        return fail(
+            exc,
+            EXIT_INPUT,
+            "stimplan: error: out of memory; lower hologram.oversample or the SLM pixels, "
+            "or pass a lower --max-memory-gb to be refused before computing",
+        )
     except OSError as exc:  # the environment: unwritable, missing, full disk
         if args.debug:
             raise

@@ -244,3 +244,19 @@ def test_progress_reports_every_stage_and_is_quiet_off_a_terminal(seq, capsys):
     assert all(t == 0 for s, _, t in seen if s != "holograms")  # unknown in advance
     assert main(["check", str(seq)]) == 0
     assert capsys.readouterr().err == ""  # stderr is not a terminal here
+
+
+@pytest.mark.parametrize(
+    ("exc", "code", "text"),
+    [(RuntimeError("a bug"), 3, "internal error"), (MemoryError(), 1, "out of memory")],
+)
+def test_a_bug_exits_3_and_memory_exhaustion_exits_1(seq, capsys, monkeypatch, exc, code, text):
+    # common practice: the documented exit-code table (stimplan --help)
+    def broken(*a, **k):
+        raise exc
+
+    monkeypatch.setattr("stimplan.cli._load_and_plan", broken)
+    assert main(["check", str(seq), "--json"]) == code
+    assert json.loads(capsys.readouterr().out)["exit_code"] == code
+    assert main(["check", str(seq)]) == code
+    assert text in capsys.readouterr().err
