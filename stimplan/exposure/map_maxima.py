@@ -104,11 +104,14 @@ def bound_between_samples(
     open_ = pm >= thr
     n_open = int(np.count_nonzero(open_))
     if n_open > REFINE_CELLS:
-        if plain_map is None:
+        spread = prepared.peak - float(prepared.irradiance.min())
+        swap = spread * lune_area_mm2(slack_um / 2.0, d / 2.0)
+        # the plain map's maximum is at least ``found``: its transform is only worth its
+        # cost when the lune term alone keeps the bound within the tolerance (plateaus)
+        if plain_map is None or swap > CENTRE_TOLERANCE * found:
             return dilated, False
         plain, plain_err = plain_map()
-        spread = prepared.peak - float(prepared.irradiance.min())
-        lune = float(plain.max()) + plain_err + spread * lune_area_mm2(slack_um / 2.0, d / 2.0)
+        lune = float(plain.max()) + plain_err + swap
         bound = min(dilated, lune)
         return bound, bound <= (1.0 + CENTRE_TOLERANCE) * found
     rr, cc = np.nonzero(open_)
