@@ -9,13 +9,21 @@ import pytest
 from stimplan.cli import main
 from stimplan.export import load_export
 
-from .scenarios import small_sequence
+from .scenarios import gui_sequence, small_sequence
 
 
 @pytest.fixture
 def seq(tmp_path):
     p = tmp_path / "small.toml"
     p.write_text(small_sequence())
+    return p
+
+
+@pytest.fixture
+def tiny(tmp_path):
+    """A 128-pixel SLM sequence, for the tests of the command's mechanics."""
+    p = tmp_path / "small.toml"
+    p.write_text(gui_sequence(power=0.5))
     return p
 
 
@@ -195,28 +203,28 @@ def _sigint(*a, **k):
     os.kill(os.getpid(), signal.SIGINT)
 
 
-def test_sigint_during_planning_exits_130(seq, tmp_path, capsys, monkeypatch):
+def test_sigint_during_planning_exits_130(tiny, tmp_path, capsys, monkeypatch):
     # common practice: 130 = 128 + SIGINT (2); nothing written
     monkeypatch.setattr("stimplan.plan.run.run_batch", _sigint)
-    assert main(["export", str(seq), "-o", str(tmp_path / "exp"), "--quiet"]) == 130
+    assert main(["export", str(tiny), "-o", str(tmp_path / "exp"), "--quiet"]) == 130
     assert "interrupted" in capsys.readouterr().err
     assert not (tmp_path / "exp").exists()
 
 
 def test_sigint_during_writing_keeps_the_old_export_and_leaves_no_partial(
-    seq, tmp_path, capsys, monkeypatch
+    tiny, tmp_path, capsys, monkeypatch
 ):
     # common practice: the new export is written beside and renamed in; an interrupt
     # leaves the old one whole and no folder that looks complete
     out = tmp_path / "exp"
-    assert main(["export", str(seq), "-o", str(out), "--quiet"]) == 0
+    assert main(["export", str(tiny), "-o", str(out), "--quiet"]) == 0
     before = sorted((q.name, q.read_bytes()) for q in out.iterdir())
     monkeypatch.setattr("stimplan.export.sha256_file", _sigint)
-    assert main(["export", str(seq), "-o", str(out), "--force", "--quiet"]) == 130
+    assert main(["export", str(tiny), "-o", str(out), "--force", "--quiet"]) == 130
     capsys.readouterr()
     assert sorted((q.name, q.read_bytes()) for q in out.iterdir()) == before
     assert sorted(q.name for q in tmp_path.iterdir()) == ["exp", "small.toml"]
-    assert main(["export", str(seq), "-o", str(tmp_path / "new"), "--quiet"]) == 130
+    assert main(["export", str(tiny), "-o", str(tmp_path / "new"), "--quiet"]) == 130
     assert not (tmp_path / "new").exists()
 
 
@@ -229,20 +237,20 @@ def test_preview_without_a_display_exits_1_instead_of_aborting(seq, capsys, monk
     assert "display" in err and "xvfb-run" in err
 
 
-def test_progress_reports_every_stage_and_is_quiet_off_a_terminal(seq, capsys):
+def test_progress_reports_every_stage_and_is_quiet_off_a_terminal(tiny, capsys):
     # common practice: progress goes to stderr, stage by stage, and not into pipes
     from stimplan.plan import plan_sequence
     from stimplan.sequence import load_sequence
 
     seen = []
-    plan = plan_sequence(load_sequence(seq), progress=lambda *a: seen.append(a))
+    plan = plan_sequence(load_sequence(tiny), progress=lambda *a: seen.append(a))
     assert plan.mask_exposure is not None  # run on first use
     stages = [s for s, _, _ in seen]
     assert stages[0] == "holograms" and "exposure" in stages and "mask exposure" in stages
     done, total = max((d, t) for s, d, t in seen if s == "holograms")
     assert done == total > 0
     assert all(t == 0 for s, _, t in seen if s != "holograms")  # unknown in advance
-    assert main(["check", str(seq)]) == 0
+    assert main(["check", str(tiny)]) == 0
     assert capsys.readouterr().err == ""  # stderr is not a terminal here
 
 
@@ -250,13 +258,13 @@ def test_progress_reports_every_stage_and_is_quiet_off_a_terminal(seq, capsys):
     ("exc", "code", "text"),
     [(RuntimeError("a bug"), 3, "internal error"), (MemoryError(), 1, "out of memory")],
 )
-def test_a_bug_exits_3_and_memory_exhaustion_exits_1(seq, capsys, monkeypatch, exc, code, text):
+def test_a_bug_exits_3_and_memory_exhaustion_exits_1(tiny, capsys, monkeypatch, exc, code, text):
     # common practice: the documented exit-code table (stimplan --help)
     def broken(*a, **k):
         raise exc
 
     monkeypatch.setattr("stimplan.cli._load_and_plan", broken)
-    assert main(["check", str(seq), "--json"]) == code
+    assert main(["check", str(tiny), "--json"]) == code
     assert json.loads(capsys.readouterr().out)["exit_code"] == code
-    assert main(["check", str(seq)]) == code
+    assert main(["check", str(tiny)]) == code
     assert text in capsys.readouterr().err
