@@ -210,3 +210,36 @@ def test_a_shallow_composition_is_still_read():
         value = {"kind": "inverted", "stimulus": value}
     doc["stimuli"]["ten"] = value
     assert "ten" in sequence_from_dict(doc).stimuli
+
+
+def test_a_required_step_value_of_none_is_reported_missing():
+    # common practice: a dict may hold None where TOML has no value; it is "missing"
+    import tomllib
+
+    from stimplan.errors import StimplanError
+    from stimplan.sequence import sequence_from_dict
+
+    from .scenarios import small_sequence
+
+    doc = tomllib.loads(small_sequence())
+    doc["steps"][0]["rate_hz"] = None
+    with pytest.raises(StimplanError) as err:
+        sequence_from_dict(doc)
+    assert "steps[0].rate_hz" in str(err.value) and "missing" in str(err.value)
+    assert "cannot be used" not in str(err.value)
+
+
+def test_a_stimulus_name_that_is_not_a_string_is_named():
+    # common practice: a dict may hold keys TOML cannot (an integer)
+    import tomllib
+
+    from stimplan.errors import StimplanError
+    from stimplan.sequence import sequence_from_dict
+
+    from .scenarios import small_sequence
+
+    doc = tomllib.loads(small_sequence())
+    doc["stimuli"][1] = {"kind": "flash"}
+    with pytest.raises(StimplanError) as err:
+        sequence_from_dict(doc)
+    assert "stimuli.1" in str(err.value) and "cannot be used" not in str(err.value)

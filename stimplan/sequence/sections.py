@@ -337,7 +337,7 @@ def read_stimuli(
     kinds = ", ".join(STIMULUS_KINDS)
     for name, body in tbl.items():
         path = f"stimuli.{name}"
-        if not NAME_RE.fullmatch(name):
+        if not isinstance(name, str) or not NAME_RE.fullmatch(name):
             report.add(path, name, "a name of letters, digits, '_' and '-'", "':' names partners")
             continue
         if not isinstance(body, dict):
@@ -423,7 +423,7 @@ def read_steps(
         report.unknown_keys(item, prefix, STEP_KEYS)
         names = _step_stimuli(report, item, prefix, stimuli, failed)
         for key in STEP_REQUIRED:
-            if key not in item:
+            if item.get(key) is None:  # absent, or None from a dict
                 report.add(f"{prefix}.{key}", None, "a number > 0", "missing")
         if "alternate" in item and "alternate_ms" not in item:
             report.add(f"{prefix}.alternate_ms", None, "> 0 (ms) with alternate", "missing")
