@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -24,11 +25,13 @@ from .disc_bound import PreparedMap, bound_over_cells, disc_sums_at, lune_area_m
 
 __all__ = [
     "CENTRE_TOLERANCE",
+    "CentreBound",
     "MAX_CANDIDATES",
     "centre_slack_um",
     "bound_between_samples",
     "sums_at_samples",
     "sample_bound",
+    "whole_map_mw",
 ]
 
 #: Samples summed exactly at most, to settle a maximum the FFT round-off leaves open.
@@ -38,7 +41,21 @@ CENTRE_TOLERANCE = 0.009
 #: Cells at most, and squares at most, that the refinement between samples may take per
 #: map and diameter; beyond them the (looser, still valid) dilated bound is kept.
 REFINE_CELLS = 512
-REFINE_SQUARES = 20_000
+REFINE_SQUARES = 60_000
+
+
+@dataclass(frozen=True)
+class CentreBound:
+    """A map's largest disc power at one diameter: bound and where it was found.
+
+    ``row`` and ``col`` are fractional sample indices (``x = col * pitch_x_um``).
+    """
+
+    bound_mw: float
+    found_mw: float
+    row: float
+    col: float
+    tight: bool
 
 
 def centre_slack_um(grid: RetinalGrid) -> float:
@@ -62,7 +79,7 @@ def bound_between_samples(
     row: int,
     col: int,
     plain_map: Callable[[], tuple[np.ndarray, float]] | None = None,
-) -> tuple[float, bool]:
+) -> CentreBound:
     """Bound over every centre (not only samples) of the disc power at ``diameter_um``.
 
     Parameters
@@ -89,17 +106,21 @@ def bound_between_samples(
 
     Returns
     -------
-    bound_mw : float
-        Where the grown-disc bound is more than :data:`CENTRE_TOLERANCE` above
-        ``found_mw``, the cells that may hold a larger value are searched by
-        branch and bound (:func:`~stimplan.exposure.disc_bound.bound_over_cells`).
-    tight : bool
-        False if that search stopped at its budget (the bound still holds).
+    CentreBound
+        ``bound_mw``: where the grown-disc bound is more than
+        :data:`CENTRE_TOLERANCE` above ``found_mw``, the cells that may hold a
+        larger value are searched by branch and bound
+        (:func:`~stimplan.exposure.disc_bound.bound_over_cells`); ``found_mw``,
+        ``row``, ``col``: the largest exact value met and its fractional sample
+        index (between samples if the search found more there); ``tight``: False
+        if that search stopped at its budget (the bound still holds).
     """
     d, err, found = diameter_um, err_mw, found_mw
-    dilated = sample_bound(pm, prepared, d + slack_um, err)
+    # no disc holds more than the whole map (tight once a disc holds all the light)
+    dilated = min(sample_bound(pm, prepared, d + slack_um, err), whole_map_mw(prepared))
+    at_sample = CentreBound(dilated, found, float(row), float(col), True)
     if dilated <= (1.0 + CENTRE_TOLERANCE) * found:
-        return dilated, True
+        return at_sample
     thr = (1.0 + CENTRE_TOLERANCE) * found - err
     open_ = pm >= thr
     n_open = int(np.count_nonzero(open_))
@@ -109,11 +130,11 @@ def bound_between_samples(
         # the plain map's maximum is at least ``found``: its transform is only worth its
         # cost when the lune term alone keeps the bound within the tolerance (plateaus)
         if plain_map is None or swap > CENTRE_TOLERANCE * found:
-            return dilated, False
+            return replace(at_sample, tight=False)
         plain, plain_err = plain_map()
         lune = float(plain.max()) + plain_err + swap
         bound = min(dilated, lune)
-        return bound, bound <= (1.0 + CENTRE_TOLERANCE) * found
+        return replace(at_sample, bound_mw=bound, tight=bound <= (1.0 + CENTRE_TOLERANCE) * found)
     rr, cc = np.nonzero(open_)
     res = bound_over_cells(
         prepared,
@@ -127,7 +148,27 @@ def bound_between_samples(
         max_squares=REFINE_SQUARES,
     )
     rest = float(np.max(np.where(open_, -np.inf, pm))) + err if n_open < pm.size else 0.0
-    return min(dilated, max(res.bound_mw, rest, found)), res.complete
+    bound = min(dilated, max(res.bound_mw, rest, found))
+    if res.found_mw > found:
+        return CentreBound(
+            bound,
+            res.found_mw,
+            res.y_um / prepared.pitch_y_um,
+            res.x_um / prepared.pitch_x_um,
+            res.complete,
+        )
+    return replace(at_sample, bound_mw=bound, tight=res.complete)
+
+
+def whole_map_mw(prepared: PreparedMap) -> float:
+    """Upper bound of the map's whole power (mW): no disc anywhere holds more.
+
+    The summed-area table's last entry is a recursive sum of every sample, within
+    ``(rows + cols) eps`` of it relatively (Higham 2002, §4.2).
+    """
+    rows, cols = prepared.shape
+    cell_mm2 = prepared.pitch_x_um * prepared.pitch_y_um * 1e-6
+    return prepared.total * cell_mm2 * (1.0 + 4.0 * (rows + cols + 4) * 2.0**-52)
 
 
 def sums_at_samples(prepared: PreparedMap, diameter_um: float, rows, cols) -> np.ndarray:

@@ -85,7 +85,7 @@ class MapSweep:
                             integ.error_bound_mw(l1, l2, d),
                         )
 
-                    value, tight = bound_between_samples(
+                    res = bound_between_samples(
                         pm,
                         prepared,
                         d,
@@ -96,8 +96,8 @@ class MapSweep:
                         col=c,
                         plain_map=plain,
                     )
-                    value = max(exact, value)
-                    if not tight:
+                    r, c, value = res.row, res.col, max(res.found_mw, res.bound_mw)
+                    if not res.tight:
                         self.loose += 1
                 cache[(key, g.shape, g.pitch_x_um, g.pitch_y_um, d)] = (r, c, value)
                 if self.progress is not None:
@@ -130,14 +130,15 @@ class MapSweep:
         return out
 
     def powers_at(self, diameters, locations) -> dict[int, list[np.ndarray]]:
-        """Per lit map group, per diameter: exact disc powers at that diameter's locations."""
+        """Per lit map group, per diameter: exact disc powers at that diameter's locations
+        (fractional sample indices: centres may fall between samples)."""
         g = self.grid
         out = {}
         for gi in self.lit:
             prepared = PreparedMap.of(self._read(gi), g.pitch_x_um, g.pitch_y_um)
             row = []
             for d, locs in zip(diameters, locations, strict=True):
-                rr, cc = np.array(locs, dtype=np.intp).reshape(-1, 2).T
+                rr, cc = np.array(locs, dtype=np.float64).reshape(-1, 2).T
                 row.append(sums_at_samples(prepared, d, rr, cc))
             out[gi] = row
         return out

@@ -47,6 +47,7 @@ __all__ = [
     "RuleResult",
     "empty_rule",
     "count_pulses",
+    "counted_pulses",
     "timeline_rules",
     "merge_rules",
     "binding_rule",
@@ -265,9 +266,10 @@ def empty_rule(rule: str, alpha: float) -> RuleResult:
     return RuleResult(rule, 0.0, alpha, 0.0, math.inf, 0.0, 0.0, 0, 1.0)
 
 
-def _groups(s: np.ndarray, d: np.ndarray, q: np.ndarray, t_i: float):
+def _groups(s: np.ndarray, d: np.ndarray, q: np.ndarray, t_i: float, touching: bool = True):
     """Group sorted pulses: those starting within ``t_i`` of a group's start, or
-    touching it, count as one. Returns start, end, energy, duration (the span) and count."""
+    touching it (if ``touching``), count as one. Returns start, end, energy,
+    duration (the span) and count."""
     e = s + d
     n = len(s)
     gs, ge, gq, gn = [], [], [], []
@@ -275,7 +277,7 @@ def _groups(s: np.ndarray, d: np.ndarray, q: np.ndarray, t_i: float):
     while k < n:
         start, end, energy, count = s[k], e[k], q[k], 1
         k += 1
-        while k < n and (s[k] < start + t_i or s[k] <= end + _TIME_TOL_S):
+        while k < n and (s[k] < start + t_i or (touching and s[k] <= end + _TIME_TOL_S)):
             end = max(end, e[k])
             energy += q[k]
             count += 1
@@ -288,13 +290,55 @@ def _groups(s: np.ndarray, d: np.ndarray, q: np.ndarray, t_i: float):
     return gs, ge, np.asarray(gq, dtype=np.float64), ge - gs, np.asarray(gn)
 
 
-def count_pulses(starts_s: np.ndarray, durs_s: np.ndarray, t_i: float) -> int:
-    """Number of pulses of a timeline after grouping within ``t_i`` (every pulse counts)."""
+def count_pulses(
+    starts_s: np.ndarray, durs_s: np.ndarray, t_i: float, *, touching: bool = True
+) -> int:
+    """Number of pulses of a timeline after grouping within ``t_i`` (every pulse counts);
+    pulses that touch are one unless ``touching`` is False."""
     if len(starts_s) == 0:
         return 0
     order = np.argsort(starts_s, kind="stable")
     s, d = starts_s[order], durs_s[order]
-    return len(_groups(s, d, np.zeros(len(s)), t_i)[0])
+    return len(_groups(s, d, np.zeros(len(s)), t_i, touching)[0])
+
+
+def counted_pulses(
+    starts_s: np.ndarray, durs_s: np.ndarray, wavelength_nm: float
+) -> dict[tuple[float, bool], int]:
+    """N of rule 3 for each grouping time and each reading of touching pulses.
+
+    Keys are ``(t_i, touching)``: pulses that touch are one pulse
+    (``touching=True``) or each its own (``False``). The standards do not say
+    which; :func:`timeline_rules` evaluates both and keeps the higher ratio.
+    """
+    return {
+        (t, m): count_pulses(starts_s, durs_s, t, touching=m)
+        for t in grouping_times_s(wavelength_nm)
+        for m in (True, False)
+    }
+
+
+def _share_sums(labels: np.ndarray, q: np.ndarray, counts: np.ndarray) -> np.ndarray:
+    """Cumulative shares, per map (row), of each map's whole energy over groups of pulses.
+
+    ``labels`` names the map each sorted pulse shows, ``q`` its energy and
+    ``counts`` the pulses of each consecutive group. Row ``k`` at column ``g``
+    is the share of map ``k``'s energy in groups ``0 .. g - 1``.
+    """
+    _, lab = np.unique(labels, return_inverse=True)
+    total = np.bincount(lab, weights=q)
+    gidx = np.repeat(np.arange(len(counts)), counts)
+    z = np.zeros((int(lab.max()) + 1, len(counts) + 1))
+    np.add.at(z, (lab, gidx + 1), q / total[lab])
+    return np.cumsum(z, axis=1)
+
+
+def _share_cap(cap: float, zc: np.ndarray | None, i, j) -> np.ndarray | float:
+    """Energy cap of the windows of groups ``i .. j``: ``cap`` times the largest share
+    of one map's energy among them (``cap`` alone without shares)."""
+    if zc is None:
+        return cap
+    return cap * np.max(zc[:, np.asarray(j) + 1] - zc[:, np.asarray(i)], axis=0)
 
 
 def _window_offsets(n: int) -> np.ndarray:
@@ -311,6 +355,7 @@ def _worst_window(
     dmin: np.ndarray,
     limit_mj: Callable[[np.ndarray], np.ndarray],
     cap: float = math.inf,
+    shares: np.ndarray | None = None,
 ) -> tuple[float, int, int]:
     """Worst energy/limit over windows [start_i, end_j] of sorted pulses (rule 2).
 
@@ -320,7 +365,9 @@ def _worst_window(
     and bound each skipped window from above by (energy up to the next
     evaluated end) / (limit at the previous evaluated end), so that the
     result can only err high. Cumulative sums give each window's energy; every
-    energy is cut to ``cap``, an upper bound on any energy at this place.
+    energy is cut to ``cap``, an upper bound on any energy at this place, times
+    the largest share of one map's energy in the window if ``shares``
+    (:func:`_share_sums`) is given.
     """
     n = len(s)
     csum = np.concatenate(([0.0], np.cumsum(q)))
@@ -328,20 +375,21 @@ def _worst_window(
     offsets = np.arange(n) if n <= _EXACT_WINDOW_MAX else _window_offsets(n)
     sampled = n > _EXACT_WINDOW_MAX
     best, bi, bj = -1.0, 0, 0
-    rows = max(1, 2_000_000 // max(1, len(offsets)))
+    maps = 1 if shares is None else shares.shape[0]
+    rows = max(1, 2_000_000 // max(1, len(offsets) * maps))
     for i0 in range(0, n, rows):
         i = np.arange(i0, min(n, i0 + rows))[:, None]
         j = i + offsets[None, :]
         valid = j < n
         jc = np.minimum(j, n - 1)
-        energy = np.minimum(csum[jc + 1] - csum[i], cap)
+        energy = np.minimum(csum[jc + 1] - csum[i], _share_cap(cap, shares, i, jc))
         dur = np.maximum(emax[jc] - s[i], dmin[i])
         with np.errstate(divide="ignore", invalid="ignore"):
             r = np.where(valid, energy / limit_mj(dur), 0.0)
         r = np.nan_to_num(r, nan=0.0, posinf=np.inf)
         if sampled:
             # the window to the last pulse, exactly
-            last_e = np.minimum(csum[n] - csum[i[:, 0]], cap)
+            last_e = np.minimum(csum[n] - csum[i[:, 0]], _share_cap(cap, shares, i[:, 0], n - 1))
             last_d = np.maximum(emax[n - 1] - s[i[:, 0]], dmin[i[:, 0]])
             with np.errstate(divide="ignore", invalid="ignore"):
                 r_last = np.nan_to_num(last_e / limit_mj(last_d), nan=0.0)
@@ -351,7 +399,7 @@ def _worst_window(
             gap = (lo <= hi) & (lo <= n - 1)
             loc = np.minimum(lo, n - 1)
             hic = np.maximum(np.minimum(hi, n - 1), 0)
-            b_e = np.minimum(csum[hic + 1] - csum[i], cap)
+            b_e = np.minimum(csum[hic + 1] - csum[i], _share_cap(cap, shares, i, hic))
             b_d = np.maximum(emax[loc] - s[i], dmin[i])
             with np.errstate(divide="ignore", invalid="ignore"):
                 b = np.where(gap, np.nan_to_num(b_e / limit_mj(b_d), nan=0.0), 0.0)
@@ -383,9 +431,10 @@ def timeline_rules(
     wavelength_nm: float,
     limit_alpha_mrad: float,
     eye: EyeModel,
-    n_counted: dict[float, int],
+    n_counted: dict[tuple[float, bool], int],
     *,
     energy_cap_mj: float = math.inf,
+    map_of_pulse: np.ndarray | None = None,
     report_alpha_mrad: float | None = None,
 ) -> dict[str, RuleResult]:
     """Rules 1-3 for one timeline of disc powers.
@@ -400,12 +449,21 @@ def timeline_rules(
         The acceptance angle whose limits are used.
     eye : EyeModel
         Its transmission turns corneal limits into retinal energies.
-    n_counted : dict of float to int
-        For each grouping time of :func:`grouping_times_s`, the number of pulses
-        of the whole sequence (:func:`count_pulses`).
+    n_counted : dict of (float, bool) to int
+        For each grouping time of :func:`grouping_times_s` and each reading of
+        touching pulses, the number of pulses of the whole sequence
+        (:func:`counted_pulses`).
     energy_cap_mj : float
         An upper bound on the energy of any group of pulses here (the largest
         disc energy of the dose map); energies above it are cut to it.
+    map_of_pulse : ndarray of int, optional
+        Which map each pulse shows, when ``energy_cap_mj`` is the largest disc
+        energy of the dose map of several maps. A group of pulses then holds at
+        most ``energy_cap_mj`` times the largest share of one map's energy
+        among its pulses: at any place its energy is ``sum_k c_k P_k`` with
+        ``c_k <= share * w_k``, and the dose is ``sum_k w_k P_k`` (all terms
+        non-negative). This keeps the bound tight where the largest disc powers
+        of different maps are placed together.
     report_alpha_mrad : float, optional
         The angle named in the results (default ``limit_alpha_mrad``).
     """
@@ -418,6 +476,11 @@ def timeline_rules(
     s = starts_s[keep][order]
     d = durs_s[keep][order]
     q = powers_mw[keep][order] * d  # mJ
+    labels = None
+    if map_of_pulse is not None and math.isfinite(energy_cap_mj):
+        labels = np.asarray(map_of_pulse)[keep][order]
+        if np.unique(labels).size < 2:
+            labels = None  # one map: the dose map is a multiple of it
     factor = retinal_energy_factor_mj(eye)
     lam = wavelength_nm
 
@@ -428,12 +491,16 @@ def timeline_rules(
 
     cap = float(energy_cap_mj)
 
-    # Rule 2: every group of pulses (touching pulses merged; that changes no energy).
-    ms, me, mq, md, mn = _groups(s, d, q, 0.0)
-    ratio, i, j = _worst_window(ms, me, mq, md, limit, cap)
+    # Pulses that touch are one exposure, and each of them is a pulse too: a bright
+    # pulse must not hide in a longer, dimmer one it touches. Rule 2 takes every window
+    # of the single pulses (those include every window of the merged ones); rules 1
+    # and 3 take both readings and keep the higher ratio.
+    ms, me, mq, md, mn = _groups(s, d, q, 0.0, touching=False)
+    zc = None if labels is None else _share_sums(labels, q, mn)
+    ratio, i, j = _worst_window(ms, me, mq, md, limit, cap, zc)
     if ratio > 0:
         dur = max(float(np.max(me[i : j + 1]) - ms[i]), float(md[i]))
-        energy = min(float(mq[i : j + 1].sum()), cap)
+        energy = min(float(mq[i : j + 1].sum()), float(_share_cap(cap, zc, i, j)))
         out["average_power"] = RuleResult(
             "average_power",
             ratio,
@@ -445,29 +512,35 @@ def timeline_rules(
             int(mn[i : j + 1].sum()),
             1.0,
         )
-    # Rule 1: each (merged) pulse.
-    mqc = np.minimum(mq, cap)
-    lim1 = limit(md)
-    r1 = mqc / lim1
-    k = int(np.argmax(r1))
-    if r1[k] > 0:
-        out["single_pulse"] = RuleResult(
-            "single_pulse",
-            float(r1[k]),
-            alpha,
-            float(mqc[k]),
-            float(lim1[k]),
-            float(ms[k] * 1e3),
-            float(md[k] * 1e3),
-            1,
-            1.0,
-        )
+    # Rule 1: each pulse, alone and merged with those it touches.
+    for touching in (False, True):
+        gs, _ge, gq, gd, gn = _groups(s, d, q, 0.0, touching)
+        gz = None if labels is None else _share_sums(labels, q, gn)
+        idx = np.arange(len(gq))
+        gqc = np.minimum(gq, _share_cap(cap, gz, idx, idx))
+        lim1 = limit(gd)
+        r1 = gqc / lim1
+        k = int(np.argmax(r1))
+        if r1[k] > out["single_pulse"].ratio:
+            out["single_pulse"] = RuleResult(
+                "single_pulse",
+                float(r1[k]),
+                alpha,
+                float(gqc[k]),
+                float(lim1[k]),
+                float(gs[k] * 1e3),
+                float(gd[k] * 1e3),
+                1,
+                1.0,
+            )
     # Rule 3: pulses grouped by each edition's time, N from the whole sequence.
     best = None
-    for t_i in grouping_times_s(lam):
-        gs, _ge, gq, gd, _gn = _groups(s, d, q, t_i)
-        gq = np.minimum(gq, cap)
-        n = max(1, int(n_counted.get(t_i, len(gs))))
+    for t_i, touching in [(t, m) for t in grouping_times_s(lam) for m in (True, False)]:
+        gs, _ge, gq, gd, gn = _groups(s, d, q, t_i, touching)
+        gz = None if labels is None else _share_sums(labels, q, gn)
+        idx = np.arange(len(gq))
+        gq = np.minimum(gq, _share_cap(cap, gz, idx, idx))
+        n = max(1, int(n_counted.get((t_i, touching), len(gs))))
         cp = float(c_p(n))
         lim = limit(gd) * cp
         r3 = gq / lim
@@ -624,7 +697,7 @@ def evaluate_train(
     starts, durs = timeline_arrays(items, "pulses")
     scales = np.array([p.scale for p in items], dtype=np.float64)
     total = float(np.max(starts + durs) - np.min(starts))
-    counted = {t: count_pulses(starts, durs, t) for t in grouping_times_s(lam)}
+    counted = counted_pulses(starts, durs, lam)
     rules = timeline_rules(
         starts, durs, power * scales, lam, max(a, 1.5), eye, counted, report_alpha_mrad=a
     )
@@ -634,7 +707,8 @@ def evaluate_train(
         f"(every window up to {_EXACT_WINDOW_MAX} pulses; longer trains bounded from above).",
         "Rule 3 counts every pulse of the timeline, grouped within "
         + " or ".join(f"{t * 1e6:g} µs" for t in grouping_times_s(lam))
-        + " (both editions' grouping times; the higher ratio is kept).",
+        + " (both editions' grouping times), pulses that touch taken as one and as "
+        "several; the highest ratio is kept.",
     )
     return TrainAssessment(
         wavelength_nm=lam,
