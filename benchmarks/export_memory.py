@@ -17,8 +17,8 @@ import time
 from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))  # the shared scenarios in tests/
-from stimplan.export import export_plan
 from stimplan.plan import plan_sequence
+from stimplan.present.export import export_plan
 from stimplan.sequence import parse_sequence
 from tests.scenarios import header
 

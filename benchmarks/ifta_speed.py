@@ -26,7 +26,7 @@ from _timing import best_time
 
 from stimplan.grid import RetinalGrid
 from stimplan.holography.ifta import IftaSettings, run_ifta
-from stimplan.target import Target
+from stimplan.optics.target import Target
 
 
 def _target(n: int) -> tuple[np.ndarray, np.ndarray]:

@@ -12,10 +12,10 @@ from __future__ import annotations
 import argparse
 
 from stimplan.comparison import compare_on_implant
-from stimplan.eye import eye_preset
 from stimplan.implant import implant_preset
+from stimplan.optics.eye import eye_preset
+from stimplan.optics.system import SLM, Illumination, OpticalSystem, Relay
 from stimplan.stimuli import Grating
-from stimplan.system import SLM, Illumination, OpticalSystem, Relay
 
 
 def main(argv=None) -> None:

@@ -18,9 +18,9 @@ import numpy as np
 
 from stimplan.batch import Task, parallel_workers, run_batch
 from stimplan.holography import IftaSettings, design_hologram
+from stimplan.optics.system import SLM, Eye, Illumination, OpticalSystem, Relay
+from stimplan.optics.target import Target
 from stimplan.stimuli import Grating
-from stimplan.system import SLM, Eye, Illumination, OpticalSystem, Relay
-from stimplan.target import Target
 
 
 def _one(system, target, settings, *, workers):

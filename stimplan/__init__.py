@@ -7,7 +7,7 @@ assessment. Nothing here imports Qt or napari.
 
 from .errors import ConfigError, ExposureLimitError, InputFileError, StimplanError
 from .grid import RetinalGrid
-from .system import SLM, Eye, Illumination, OpticalSystem, Relay
+from .optics.system import SLM, Eye, Illumination, OpticalSystem, Relay
 
 __version__ = "0.1.0"
 

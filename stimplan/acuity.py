@@ -14,7 +14,7 @@ Implants
     one pixel pitch (period two pitches), the sampling (Nyquist) limit.
 
 Every function that needs the retinal scale takes ``eye``: a
-:class:`stimplan.system.Eye` or a plain number of µm per degree.
+:class:`stimplan.optics.system.Eye` or a plain number of µm per degree.
 
 References
 ----------
@@ -37,7 +37,7 @@ from typing import Any, NamedTuple
 
 from . import validate
 from .errors import ConfigError
-from .system import Eye
+from .optics.system import Eye
 
 __all__ = [
     "ARCMIN_PER_DEG",

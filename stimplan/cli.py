@@ -17,7 +17,7 @@ from pathlib import Path
 
 from . import __version__
 from .errors import ExportError, ExposureLimitError, StimplanError
-from .summary import plan_summary, print_table
+from .present.summary import plan_summary, print_table
 
 __all__ = ["main", "build_parser", "plan_summary", "print_table"]  # the last two re-exported
 
@@ -98,7 +98,7 @@ def _cmd_check(args: argparse.Namespace) -> int:
 
 
 def _cmd_export(args: argparse.Namespace) -> int:
-    from .export import check_export_target, export_plan
+    from .present.export import check_export_target, export_plan
 
     # refuse a target that may not be written before any computing
     check_export_target(args.output, force=args.force, keep=(args.file,))
@@ -117,7 +117,7 @@ def _cmd_export(args: argparse.Namespace) -> int:
 
 def _check_report_target(output: str, *, force: bool) -> None:
     """Refuse, before any computing, a report path that cannot be written."""
-    from .export import check_writable_location
+    from .present.export import check_writable_location
 
     dst = Path(output).absolute()
     allowed = "a new file, or with --force an existing file"
@@ -129,7 +129,7 @@ def _check_report_target(output: str, *, force: bool) -> None:
 
 
 def _cmd_report(args: argparse.Namespace) -> int:
-    from .report import write_report
+    from .present.report import write_report
 
     _check_report_target(args.output, force=args.force)
     plan = _load_and_plan(args)

@@ -23,9 +23,9 @@ import numpy as np
 from .baseline import MASK_PRESETS, AmplitudeMask, MaskPrediction, project_mask
 from .errors import ConfigError
 from .holography import Hologram, IftaSettings, RetinalPrediction, design_hologram
-from .implant_target import PixelStates, implant_target, pixel_states
+from .implant.target import PixelStates, implant_target, pixel_states
 from .metrics import coefficient_of_variation
-from .target import Target
+from .optics.target import Target
 
 __all__ = ["ProjectorFigures", "ImplantComparison", "pixel_figures", "compare_on_implant"]
 

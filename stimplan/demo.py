@@ -47,7 +47,7 @@ def demo_system(quick: bool = True):
 
 def demo_target(system, name: str = "bars_2px"):
     """One demo stimulus as an image-domain target on ``system``'s design grid."""
-    from .target import Target
+    from .optics.target import Target
 
     spec = demo_spec(system.slm.pixels_x < 1024)
     grid = system.design_grid()
@@ -60,10 +60,10 @@ def run_demo(output: str | Path, *, force: bool = False, quick: bool = False) ->
     Prints the summary table (with the cautions). The output folder is
     written atomically and never replaced without ``force``.
     """
-    from .export import export_plan
     from .plan import plan_sequence
-    from .report import write_report
-    from .summary import print_table
+    from .present.export import export_plan
+    from .present.report import write_report
+    from .present.summary import print_table
 
     spec = demo_spec(quick)
     plan = plan_sequence(spec, progress=True)

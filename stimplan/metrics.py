@@ -234,7 +234,7 @@ def pattern_metrics(prediction, target, lit: np.ndarray | None = None) -> Patter
     .. [1] Di Leonardo et al., *Opt. Express* 15, 1913 (2007); J. R. Fienup, *Appl. Opt.* 21, 2758
        (1982); Goodman, *Speckle Phenomena in Optics* (2007), §3.1.
     """
-    from .target import resample_coverage
+    from .optics.target import resample_coverage
 
     grid = prediction.grid
     if lit is None:

@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from stimplan.system import SLM, Eye, Illumination, OpticalSystem, Relay
+from stimplan.optics.system import SLM, Eye, Illumination, OpticalSystem, Relay
 
 
 def make_system(

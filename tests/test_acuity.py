@@ -8,14 +8,14 @@ import pytest
 
 from stimplan import acuity as ac
 from stimplan.errors import ConfigError
-from stimplan.eye import (
+from stimplan.optics.eye import (
     EYE_PRESETS,
     MOUSE_UM_PER_DEG,
     RAT_TO_MOUSE_SCALE,
     eye_names,
     eye_preset,
 )
-from stimplan.system import Eye
+from stimplan.optics.system import Eye
 
 # -- logMAR, MAR, Snellen, decimal -------------------------------------------------
 

@@ -9,7 +9,7 @@ from stimplan.baseline import MASK_PRESETS, AmplitudeMask, project_mask
 from stimplan.grid import RetinalGrid
 from stimplan.holography import IftaSettings, design_hologram
 from stimplan.metrics import pattern_metrics
-from stimplan.target import Target
+from stimplan.optics.target import Target
 
 from .conftest import make_system
 

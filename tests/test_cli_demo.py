@@ -7,7 +7,7 @@ import json
 import pytest
 
 from stimplan.cli import main
-from stimplan.export import load_export
+from stimplan.present.export import load_export
 
 from .scenarios import gui_sequence, small_sequence
 
@@ -219,7 +219,7 @@ def test_sigint_during_writing_keeps_the_old_export_and_leaves_no_partial(
     out = tmp_path / "exp"
     assert main(["export", str(tiny), "-o", str(out), "--quiet"]) == 0
     before = sorted((q.name, q.read_bytes()) for q in out.iterdir())
-    monkeypatch.setattr("stimplan.export.sha256_file", _sigint)
+    monkeypatch.setattr("stimplan.present.export.sha256_file", _sigint)
     assert main(["export", str(tiny), "-o", str(out), "--force", "--quiet"]) == 130
     capsys.readouterr()
     assert sorted((q.name, q.read_bytes()) for q in out.iterdir()) == before

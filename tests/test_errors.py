@@ -7,8 +7,8 @@ import pytest
 
 from stimplan.errors import ConfigError, InputFileError, StimplanError
 from stimplan.holography import IftaSettings, design_hologram
-from stimplan.system import SLM, Illumination, OpticalSystem, Relay
-from stimplan.target import Target
+from stimplan.optics.system import SLM, Illumination, OpticalSystem, Relay
+from stimplan.optics.target import Target
 
 from .conftest import make_system
 

@@ -10,8 +10,8 @@ import math
 import numpy as np
 import pytest
 
-from stimplan.export import load_export
 from stimplan.plan import plan_sequence
+from stimplan.present.export import load_export
 from stimplan.sequence import load_sequence
 from stimplan_napari import _readout
 from stimplan_napari._io import get_export_reader, get_sequence_reader, is_sequence_file

@@ -16,7 +16,7 @@ from stimplan.holography import (
 )
 from stimplan.holography.quantize import GreyLevelMap
 from stimplan.metrics import pattern_metrics, spot_powers, uniformity
-from stimplan.target import Target
+from stimplan.optics.target import Target
 
 from .conftest import make_system
 

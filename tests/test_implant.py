@@ -9,7 +9,6 @@ import pytest
 from scipy import integrate
 
 from stimplan.errors import ConfigError
-from stimplan.eye import eye_preset
 from stimplan.grid import RetinalGrid
 from stimplan.implant import (
     Implant,
@@ -19,6 +18,7 @@ from stimplan.implant import (
     polygon_quadrant_area,
     silicon_responsivity_limit_a_per_w,
 )
+from stimplan.optics.eye import eye_preset
 
 SQRT3 = math.sqrt(3.0)
 

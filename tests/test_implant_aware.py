@@ -6,12 +6,12 @@ import numpy as np
 import pytest
 
 from stimplan.comparison import compare_on_implant
-from stimplan.eye import eye_preset
 from stimplan.grid import RetinalGrid
 from stimplan.implant import Implant, implant_preset
-from stimplan.implant_target import implant_target, pixel_states
+from stimplan.implant.target import implant_target, pixel_states
+from stimplan.optics.eye import eye_preset
+from stimplan.optics.system import SLM, Illumination, OpticalSystem, Relay
 from stimplan.stimuli import LANDOLT_ORIENTATIONS, Grating, LandoltRing
-from stimplan.system import SLM, Illumination, OpticalSystem, Relay
 
 
 @pytest.fixture(scope="module")

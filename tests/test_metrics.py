@@ -16,7 +16,7 @@ def test_pattern_metrics_follow_their_definitions(rng):
     # Fienup, Appl. Opt. 21, 2758 (1982) (normalised RMS error after the best scale).
     from stimplan.holography import design_hologram
     from stimplan.holography.ifta import IftaSettings
-    from stimplan.target import Target
+    from stimplan.optics.target import Target
 
     system = make_system(64)
     grid = system.design_grid()

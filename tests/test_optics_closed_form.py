@@ -88,7 +88,7 @@ def test_pixel_aperture_envelope_is_sinc_squared():
     # the Fraunhofer pattern of a rectangular aperture of width a is sinc^2(a u).
     n, ff = 128, 0.64
     # one lit pixel: its DFT is flat, so the prediction is the envelope itself
-    from stimplan.system import SLM, Eye, Illumination, OpticalSystem, Relay
+    from stimplan.optics.system import SLM, Eye, Illumination, OpticalSystem, Relay
 
     amp = np.zeros((n, n), np.float32)
     amp[n // 2, n // 2] = 1.0

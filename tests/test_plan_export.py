@@ -8,11 +8,11 @@ import numpy as np
 import pytest
 
 from stimplan.errors import ExportError, ExposureLimitError, IntegrityError
-from stimplan.export import export_plan, load_export
 from stimplan.holography import predict_from_levels
 from stimplan.holography.quantize import grey_map_for
 from stimplan.plan import plan_sequence
-from stimplan.report import render_report
+from stimplan.present.export import export_plan, load_export
+from stimplan.present.report import render_report
 from stimplan.sequence import load_sequence
 
 from .scenarios import small_sequence

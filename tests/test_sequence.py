@@ -235,7 +235,8 @@ def test_defaults_are_filled_in():
 
 
 def test_degrees_are_converted_with_the_eye():
-    # Source: stimplan.eye rat preset, 31 um/deg x 1.95 (Remtulla & Hallett 1985; from memory).
+    # Source: stimplan.optics.eye rat preset, 31 um/deg x 1.95 (Remtulla & Hallett 1985;
+    # from memory).
     text = _mutate(BASE, "check_um = 110.0", "check_deg = 2.0")
     spec = parse_sequence(text)
     assert spec.stimuli["checks"].check_um == pytest.approx(2.0 * 31.0 * 1.95)

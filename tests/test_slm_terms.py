@@ -6,8 +6,8 @@ import numpy as np
 import pytest
 
 from stimplan.holography import GreyLevelMap, IftaSettings, design_hologram, predict_retina
-from stimplan.system import SLM, Eye, Illumination, OpticalSystem, Relay
-from stimplan.target import Target
+from stimplan.optics.system import SLM, Eye, Illumination, OpticalSystem, Relay
+from stimplan.optics.target import Target
 
 
 def test_linear_lookup_with_settable_2pi_grey():

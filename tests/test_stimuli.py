@@ -10,9 +10,9 @@ import scipy.fft
 from PIL import Image
 
 from stimplan.errors import ConfigError, InputFileError
-from stimplan.eye import eye_preset
 from stimplan.grid import RetinalGrid
 from stimplan.implant import Implant
+from stimplan.optics.eye import eye_preset
 from stimplan.stimuli import (
     LANDOLT_ORIENTATIONS,
     SLOAN_LETTERS,

@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import json
 
-from stimplan.export import export_plan, sha256_file
 from stimplan.plan import plan_sequence
+from stimplan.present.export import export_plan, sha256_file
 from stimplan.sequence import parse_sequence
 
 from .scenarios import small_sequence

@@ -110,7 +110,7 @@ def with_slm_pixels(system, pixels: int | None):
     OpticalSystem
     """
     from stimplan import validate
-    from stimplan.system import MAX_SLM_PIXELS
+    from stimplan.optics.system import MAX_SLM_PIXELS
 
     if not pixels:
         return system

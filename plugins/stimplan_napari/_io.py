@@ -123,7 +123,7 @@ def get_export_reader(path):
 
 def read_export(path) -> list[tuple]:
     """Read an export (checksums verified) as the per-frame SLM grey levels."""
-    from stimplan.export import load_export
+    from stimplan.present.export import load_export
 
     from ._readout import announce_export
 
@@ -167,7 +167,7 @@ def write_export(path: str, layer_data: list[tuple]) -> list[str]:
         If the plan is above a limit.
     """
     from stimplan.errors import ConfigError
-    from stimplan.export import export_plan
+    from stimplan.present.export import export_plan
 
     plan = None
     for item in layer_data:

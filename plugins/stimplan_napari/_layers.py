@@ -78,7 +78,7 @@ def grid_placement(grid) -> dict[str, Any]:
 def slm_placement(slm) -> dict[str, Any]:
     """``scale``/``translate`` of an SLM-plane image in SLM µm, centred on the optical axis.
 
-    Pixel centres land where :meth:`stimplan.system.SLM.pixel_coords_mm` puts
+    Pixel centres land where :meth:`stimplan.optics.system.SLM.pixel_coords_mm` puts
     them (displayed as ``(-y, x)``).
     """
     return _slm_plane(slm.pixels_y, slm.pixels_x, slm.pitch_um)

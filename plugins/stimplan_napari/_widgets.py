@@ -581,7 +581,7 @@ class SequencePanel(Container):
     # -- export ------------------------------------------------------------------------------
     def export(self, *_: Any) -> Path | None:
         """Export the plan (the button's action); refuses above the limit without a reason."""
-        from stimplan.export import export_plan
+        from stimplan.present.export import export_plan
 
         if self.plan is None:
             self.export_status.value = "plan a sequence first"

@@ -21,7 +21,7 @@ import numpy as np
 
 from .. import validate
 from ..errors import ConfigError
-from ..target import Target
+from ..optics.target import Target
 from .ifta import IftaSettings, run_ifta
 from .propagation import RetinalPrediction, pixel_aperture_envelope, predict_retina
 from .quantize import GreyLevelMap, grey_map_for, quantize_phase

@@ -31,7 +31,7 @@ import scipy.fft as sfft
 
 from .. import validate
 from ..errors import ConfigError
-from ..target import Target
+from ..optics.target import Target
 from . import kernels
 
 __all__ = ["IftaSettings", "IftaResult", "run_ifta", "METHODS"]

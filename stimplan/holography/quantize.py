@@ -206,7 +206,7 @@ class GreyLevelMap:
 
 
 def grey_map_for(slm) -> GreyLevelMap:
-    """The :class:`GreyLevelMap` an :class:`~stimplan.system.SLM` describes."""
+    """The :class:`GreyLevelMap` an :class:`~stimplan.optics.system.SLM` describes."""
     if slm.lut_file:
         return GreyLevelMap.from_table(slm.lut_file, slm.phase_levels)
     return GreyLevelMap.linear(slm.phase_levels, slm.grey_2pi)

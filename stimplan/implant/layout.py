@@ -14,7 +14,7 @@ from .. import validate
 from ..acuity import GratingAcuity, nyquist_acuity
 from ..errors import ConfigError
 from ..grid import RetinalGrid
-from ..system import Eye
+from ..optics.system import Eye
 from .checks import (
     REGIONS,
     check_fields,

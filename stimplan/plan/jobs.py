@@ -11,8 +11,9 @@ from ..comparison import pixel_figures, project_mask_on_implant
 from ..holography import Hologram, add_phase_ramp, design_hologram
 from ..holography.design import display_levels
 from ..holography.quantize import grey_map_for
-from ..implant_target import implant_target, pixel_states
+from ..implant.target import implant_target, pixel_states
 from ..metrics import pattern_metrics
+from ..optics.target import Target
 from ..reuse import (
     coarse_grid,
     envelope_change,
@@ -22,7 +23,6 @@ from ..reuse import (
     translation_between,
     verify_translation,
 )
-from ..target import Target
 from .model import StimulusPlan
 from .spool import (
     REFERENCE_POWER_MW,

@@ -7,7 +7,7 @@ import re
 
 from ..exposure import ProtocolCap
 from ..implant import Implant
-from ..system import SLM, Illumination, Relay
+from ..optics.system import SLM, Illumination, Relay
 
 __all__ = [
     "FORMAT",

@@ -13,7 +13,7 @@ from .. import validate
 from ..baseline import MASK_PRESETS
 from ..errors import ConfigError
 from ..exposure import check_wavelength
-from ..system import Eye, Illumination, OpticalSystem
+from ..optics.system import Eye, Illumination, OpticalSystem
 from .keys import (
     FORMAT,
     LIMITS_KEYS,

@@ -14,8 +14,8 @@ from ..errors import ConfigError
 from ..exposure import ProtocolCap
 from ..holography.ifta import IftaSettings
 from ..implant import Implant
+from ..optics.system import OpticalSystem
 from ..stimuli.base import Stimulus
-from ..system import OpticalSystem
 from .keys import (
     FORMAT,
     IFTA_KEYS,

@@ -16,12 +16,12 @@ from .. import validate
 from ..baseline import MASK_PRESETS, AmplitudeMask
 from ..errors import ConfigError, StimplanError
 from ..exposure import ProtocolCap
-from ..eye import EYE_PRESETS, eye_preset
 from ..holography.ifta import IftaSettings
 from ..implant import IMPLANT_PRESETS, Implant, implant_preset
+from ..optics.eye import EYE_PRESETS, eye_preset
+from ..optics.system import SLM, Eye, Illumination, Relay
 from ..stimuli.base import STIMULUS_KINDS, Stimulus
 from ..stimuli.registry import stimulus_from_dict
-from ..system import SLM, Eye, Illumination, Relay
 from .keys import (
     EYE_KEYS,
     HOLOGRAM_KEYS,

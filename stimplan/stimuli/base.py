@@ -41,7 +41,7 @@ from .. import validate
 from ..acuity import um_per_deg_of
 from ..errors import ConfigError
 from ..grid import RetinalGrid
-from ..system import Eye
+from ..optics.system import Eye
 
 __all__ = [
     "Stimulus",

@@ -27,7 +27,7 @@ from .. import validate
 from ..acuity import bar_width_um_from_px, period_um_from_cpd
 from ..errors import ConfigError
 from ..grid import RetinalGrid
-from ..system import Eye
+from ..optics.system import Eye
 from .base import DEFAULT_SUPERSAMPLE, Figure, as_given, check_grid, positive, register
 
 __all__ = ["Grating", "Checkerboard", "square_wave_box_mean"]

@@ -12,7 +12,7 @@ width and the MAR (minimum angle of resolution) of the symbol:
 
 Size is the height (5 units) in µm; :meth:`Optotype.from_logmar` and its
 siblings convert logMAR, MAR in arcmin, Snellen fractions and decimal acuity
-through an :class:`~stimplan.system.Eye`.
+through an :class:`~stimplan.optics.system.Eye`.
 
 References
 ----------
@@ -43,7 +43,7 @@ from ..acuity import (
     mar_from_snellen,
 )
 from ..errors import ConfigError
-from ..system import Eye
+from ..optics.system import Eye
 from .base import Figure, positive, register
 
 __all__ = [

@@ -13,7 +13,7 @@ from collections.abc import Mapping
 from typing import Any
 
 from ..errors import ConfigError
-from ..system import Eye
+from ..optics.system import Eye
 from . import compose, gratings, images, optotypes, shapes  # noqa: F401 - they register kinds
 from .base import STIMULUS_KINDS, Stimulus, build_stimulus
 
@@ -60,7 +60,7 @@ def stimulus_from_dict(
 
     Examples
     --------
-    >>> from stimplan.eye import eye_preset
+    >>> from stimplan.optics.eye import eye_preset
     >>> s = stimulus_from_dict("landolt", {"logmar": 1.0, "orientation": "up"},
     ...                        eye=eye_preset("human"))
     >>> round(s.height_um, 1)

@@ -28,10 +28,10 @@ from typing import Literal
 
 import numpy as np
 
-from . import validate
-from .errors import ConfigError
-from .grid import RetinalGrid
-from .io_images import read_scalar_image
+from .. import validate
+from ..errors import ConfigError
+from ..grid import RetinalGrid
+from ..io_images import read_scalar_image
 
 __all__ = [
     "SLM",

@@ -17,9 +17,9 @@ from pathlib import Path
 
 import numpy as np
 
-from . import __version__
-from ._atomic import atomic_file
-from .cautions import CAUTIONS, EDITION
+from .. import __version__
+from .._atomic import atomic_file
+from ..cautions import CAUTIONS, EDITION
 
 __all__ = ["render_report", "write_report"]
 

@@ -24,10 +24,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import validate
-from .errors import ConfigError
-from .grid import RetinalGrid
-from .target import Target
+from .. import validate
+from ..errors import ConfigError
+from ..grid import RetinalGrid
+from ..optics.target import Target
 
 __all__ = ["PixelStates", "pixel_states", "implant_target"]
 

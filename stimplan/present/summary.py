@@ -7,8 +7,8 @@ from __future__ import annotations
 
 import sys
 
-from . import __version__
-from .cautions import CAUTIONS
+from .. import __version__
+from ..cautions import CAUTIONS
 from .export import json_safe
 
 __all__ = ["stimulus_rows", "plan_summary", "print_table"]

@@ -1,6 +1,6 @@
 """Eye presets: human, rat and mouse.
 
-Each preset is a :class:`stimplan.system.Eye` (retinal µm per degree of visual
+Each preset is a :class:`stimplan.optics.system.Eye` (retinal µm per degree of visual
 angle, pupil diameter, ocular transmission at the near-infrared working
 wavelength). Every value names its source; values recalled without the text
 at hand are marked *from memory* and should be replaced by measured ones for a
@@ -21,7 +21,7 @@ from __future__ import annotations
 from types import MappingProxyType
 from typing import Any
 
-from .errors import ConfigError
+from ..errors import ConfigError
 from .system import Eye
 
 __all__ = [

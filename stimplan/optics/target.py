@@ -22,9 +22,9 @@ import numpy as np
 import scipy.sparse as sp
 from scipy import ndimage
 
-from . import validate
-from .errors import ConfigError
-from .grid import RetinalGrid, interval_overlap
+from .. import validate
+from ..errors import ConfigError
+from ..grid import RetinalGrid, interval_overlap
 
 __all__ = ["Target", "resample_coverage"]
 
