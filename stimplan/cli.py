@@ -89,11 +89,11 @@ def _cmd_demo(args: argparse.Namespace) -> int:
 
 
 def _cmd_check(args: argparse.Namespace) -> int:
-    plan = _load_and_plan(args, quiet=args.json)
-    if args.json:
-        print(json.dumps(plan_summary(plan), indent=1))
-    else:
-        print_table(plan)
+    with _load_and_plan(args, quiet=args.json) as plan:
+        if args.json:
+            print(json.dumps(plan_summary(plan), indent=1))
+        else:
+            print_table(plan)
     return EXIT_OK
 
 
@@ -102,15 +102,15 @@ def _cmd_export(args: argparse.Namespace) -> int:
 
     # refuse a target that may not be written before any computing
     check_export_target(args.output, force=args.force, keep=(args.file,))
-    plan = _load_and_plan(args)
-    out = export_plan(
-        plan,
-        args.output,
-        force=args.force,
-        stack_format=args.stack,
-        acknowledge_reason=args.acknowledge,
-    )
-    print_table(plan)
+    with _load_and_plan(args) as plan:
+        out = export_plan(
+            plan,
+            args.output,
+            force=args.force,
+            stack_format=args.stack,
+            acknowledge_reason=args.acknowledge,
+        )
+        print_table(plan)
     print(f"export written to {out}", file=sys.stderr)
     return EXIT_OK
 
@@ -132,9 +132,9 @@ def _cmd_report(args: argparse.Namespace) -> int:
     from .present.report import write_report
 
     _check_report_target(args.output, force=args.force)
-    plan = _load_and_plan(args)
-    out = write_report(plan, args.output, force=args.force)
-    print_table(plan)
+    with _load_and_plan(args) as plan:
+        out = write_report(plan, args.output, force=args.force)
+        print_table(plan)
     print(f"report written to {out}", file=sys.stderr)
     return EXIT_OK
 

@@ -17,6 +17,7 @@ import numpy as np
 
 from . import validate
 from .errors import ConfigError
+from .optics.target import resample_coverage
 
 __all__ = [
     "efficiency",
@@ -234,7 +235,6 @@ def pattern_metrics(prediction, target, lit: np.ndarray | None = None) -> Patter
     .. [1] Di Leonardo et al., *Opt. Express* 15, 1913 (2007); J. R. Fienup, *Appl. Opt.* 21, 2758
        (1982); Goodman, *Speckle Phenomena in Optics* (2007), §3.1.
     """
-    from .optics.target import resample_coverage
 
     grid = prediction.grid
     if lit is None:

@@ -20,6 +20,8 @@ import math
 import numpy as np
 from scipy import ndimage
 
+from .grid import RetinalGrid
+
 __all__ = [
     "family_key",
     "proposed_translations",
@@ -137,7 +139,6 @@ def translation_between(
 
 def coarse_grid(grid, samples: int = 256):
     """The same field sampled by at most ``samples`` per axis (for cheap comparisons)."""
-    from .grid import RetinalGrid
 
     fy = max(1, grid.rows // samples)
     fx = max(1, grid.cols // samples)

@@ -240,11 +240,12 @@ def test_preview_without_a_display_exits_1_instead_of_aborting(seq, capsys, monk
 def test_progress_reports_every_stage_and_is_quiet_off_a_terminal(tiny, capsys):
     # common practice: progress goes to stderr, stage by stage, and not into pipes
     from stimplan.plan import plan_sequence
+    from stimplan.plan.evaluate import mask_exposure
     from stimplan.sequence import load_sequence
 
     seen = []
     plan = plan_sequence(load_sequence(tiny), progress=lambda *a: seen.append(a))
-    assert plan.mask_exposure is not None  # run on first use
+    assert mask_exposure(plan) is not None  # run when asked for
     stages = [s for s, _, _ in seen]
     assert stages[0] == "holograms" and "exposure" in stages and "mask exposure" in stages
     done, total = max((d, t) for s, d, t in seen if s == "holograms")

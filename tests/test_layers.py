@@ -40,7 +40,7 @@ STAGES = [
     {"sequence"},
     {"plan"},
     {"present"},
-    {"demo"},
+    {"scenarios", "demo"},
     {"cli"},
 ]
 STAGE = {name: k for k, names in enumerate(STAGES) for name in names}

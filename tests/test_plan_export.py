@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -11,6 +12,7 @@ from stimplan.errors import ExportError, ExposureLimitError, IntegrityError
 from stimplan.holography import predict_from_levels
 from stimplan.holography.quantize import grey_map_for
 from stimplan.plan import plan_sequence
+from stimplan.plan.evaluate import mask_exposure
 from stimplan.present.export import export_plan, load_export
 from stimplan.present.report import render_report
 from stimplan.sequence import load_sequence
@@ -220,6 +222,19 @@ def test_mask_exposure_at_equal_irradiance_scales_with_its_power(tmp_path):
     frame = next(f for f in plan.frames if f.lit)
     factor = plan.mask_power_for(frame) / frame.power_mw
     assert factor > 5  # the mask throws light away
-    same = plan.mask_exposure.worst_ratio
-    equal = plan.mask_exposure_equal_irradiance.worst_ratio
+    same = mask_exposure(plan).worst_ratio
+    equal = mask_exposure(plan, equal_irradiance=True).worst_ratio
     assert equal == pytest.approx(same * factor, rel=1e-6)
+
+
+def test_a_spooled_plan_removes_its_folder_on_close(tmp_path):
+    # common practice: a temporary folder lives as long as its owner and no longer
+    path = tmp_path / "one.toml"
+    text = small_sequence()
+    path.write_text(text[: text.index("[[steps]]", text.index("[[steps]]") + 1)])
+    with plan_sequence(load_sequence(path), progress=False, store="disk") as plan:
+        folder = Path(plan.spool.name)
+        assert plan.holograms[0].spooled and any(folder.iterdir())
+        assert plan.holograms[0].hologram.phase_rad.shape == plan.spec.system.slm.shape
+    assert not folder.exists()
+    plan.close()  # closing twice is harmless

@@ -16,6 +16,17 @@ from typing import Any
 
 import numpy as np
 
+from stimplan import validate
+from stimplan.errors import ConfigError
+from stimplan.holography import IftaSettings
+from stimplan.implant import implant_preset
+from stimplan.plan import REFERENCE_POWER_MW, plan_sequence
+from stimplan.plan.memory import check_memory
+from stimplan.scenarios import SCENARIOS, load_scenario, with_slm_pixels
+from stimplan.sequence import StepSpec, load_sequence
+from stimplan.stimuli import E_ORIENTATIONS, LANDOLT_ORIENTATIONS, SLOAN_LETTERS, stimulus_from_dict
+from stimplan.stimuli.base import STIMULUS_KINDS
+
 __all__ = [
     "OPTICS_PRESETS",
     "SOURCE_IMPLANT",
@@ -24,16 +35,12 @@ __all__ = [
     "StimulusRequest",
     "StimulusResult",
     "load_optics",
-    "with_slm_pixels",
     "stimulus_fields",
     "compute_stimulus",
 ]
 
 #: Optics presets of the panel: the systems of the demo scenarios (our own numbers).
-OPTICS_PRESETS: Mapping[str, str] = {
-    "rat grating-acuity demo": "rat_grating_acuity.toml",
-    "human letter-acuity demo": "human_letter_acuity.toml",
-}
+OPTICS_PRESETS: Mapping[str, str] = SCENARIOS
 #: Implant choice: the one of the optics source.
 SOURCE_IMPLANT = "as in optics"
 #: Implant choice: no implant.
@@ -83,45 +90,10 @@ def load_optics(source: str):
     SequenceError
         If the file is not a valid sequence.
     """
-    from stimplan.demo import demo_path
-    from stimplan.sequence import load_sequence
 
     if source in OPTICS_PRESETS:
-        return load_sequence(demo_path(OPTICS_PRESETS[source]))
+        return load_scenario(source)
     return load_sequence(Path(source))
-
-
-def with_slm_pixels(system, pixels: int | None):
-    """The system with an SLM of ``pixels`` per side and the same pixel pitch.
-
-    The retinal field (``λ f / (p M)``) stays; it is sampled more coarsely
-    (or finely). The Gaussian waist and the Fresnel focal length scale with
-    the SLM width, so that the beam fills the SLM and the zero-order disc
-    keeps its size, as :func:`stimplan.demo.demo_spec` does for ``quick``.
-
-    Parameters
-    ----------
-    system : OpticalSystem
-    pixels : int or None
-        Pixels per side; ``None`` or 0 keeps the system.
-
-    Returns
-    -------
-    OpticalSystem
-    """
-    from stimplan import validate
-    from stimplan.optics.system import MAX_SLM_PIXELS
-
-    if not pixels:
-        return system
-    n = validate.integer("slm pixels per side", pixels, lo=16, hi=MAX_SLM_PIXELS)
-    slm = system.slm
-    k = n / max(slm.pixels_x, slm.pixels_y)
-    ill = replace(system.illumination, waist_mm=system.illumination.waist_mm * k)
-    relay = system.relay
-    if relay.fresnel_focal_mm is not None:
-        relay = replace(relay, fresnel_focal_mm=relay.fresnel_focal_mm * k)
-    return replace(system, slm=replace(slm, pixels_x=n, pixels_y=n), illumination=ill, relay=relay)
 
 
 def stimulus_fields(kind: str) -> list[tuple[str, Any, Any, tuple | None]]:
@@ -131,9 +103,6 @@ def stimulus_fields(kind: str) -> list[tuple[str, Any, Any, tuple | None]]:
     the allowed values of a parameter that takes one of a few names.
     """
     import typing
-
-    from stimplan.stimuli import E_ORIENTATIONS, LANDOLT_ORIENTATIONS, SLOAN_LETTERS
-    from stimplan.stimuli.base import STIMULUS_KINDS
 
     named = {
         ("landolt", "orientation"): tuple(LANDOLT_ORIENTATIONS),
@@ -253,12 +222,6 @@ class StimulusResult:
 
 
 def _one_step_spec(request: StimulusRequest):
-    from stimplan import validate
-    from stimplan.errors import ConfigError
-    from stimplan.holography import IftaSettings
-    from stimplan.implant import implant_preset
-    from stimplan.sequence import StepSpec
-    from stimplan.stimuli import stimulus_from_dict
 
     base = load_optics(request.optics)
     validate.choice("stimulus.kind", request.kind, PANEL_KINDS)
@@ -333,9 +296,6 @@ def compute_stimulus(
     StimplanError
         For bad input (the message names the field, the value and what is allowed).
     """
-    from stimplan.errors import ConfigError
-    from stimplan.plan import REFERENCE_POWER_MW, plan_sequence
-    from stimplan.plan.memory import check_memory
 
     spec, power = _one_step_spec(request)
     cb = None

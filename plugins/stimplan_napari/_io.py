@@ -13,7 +13,14 @@ import tomllib
 from pathlib import Path
 from typing import Any
 
+from stimplan.errors import ConfigError
+from stimplan.plan import plan_sequence
+from stimplan.plan.memory import check_memory
+from stimplan.present.export import export_plan, load_export
+from stimplan.sequence import load_sequence
+
 from ._layers import PLAN_KEY, RESULT_KEY, export_layers, plan_layers
+from ._readout import announce, announce_export
 
 __all__ = [
     "is_sequence_file",
@@ -98,11 +105,6 @@ def read_sequence(path) -> list[tuple]:
 
     Warnings (limits exceeded, a clipped beam) are shown to the user.
     """
-    from stimplan.plan import plan_sequence
-    from stimplan.plan.memory import check_memory
-    from stimplan.sequence import load_sequence
-
-    from ._readout import announce
 
     p = _one_path(path)
     spec = load_sequence(p)
@@ -123,9 +125,6 @@ def get_export_reader(path):
 
 def read_export(path) -> list[tuple]:
     """Read an export (checksums verified) as the per-frame SLM grey levels."""
-    from stimplan.present.export import load_export
-
-    from ._readout import announce_export
 
     bundle = load_export(_one_path(path))
     announce_export(bundle)
@@ -166,8 +165,6 @@ def write_export(path: str, layer_data: list[tuple]) -> list[str]:
     ExposureLimitError
         If the plan is above a limit.
     """
-    from stimplan.errors import ConfigError
-    from stimplan.present.export import export_plan
 
     plan = None
     for item in layer_data:

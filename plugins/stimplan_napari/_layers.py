@@ -18,6 +18,8 @@ from typing import Any
 
 import numpy as np
 
+from stimplan.plan import REFERENCE_POWER_MW
+
 __all__ = [
     "LAYER_NAMES",
     "PLAN_KEY",
@@ -288,7 +290,6 @@ def plan_frame_maps(plan):
     Each hologram is predicted at 1 mW; frame ``k`` is its hologram's map
     times the frame's laser power.
     """
-    from stimplan.plan import REFERENCE_POWER_MW
 
     pages = [sp.prediction.irradiance_mw_per_mm2 for sp in plan.holograms]
     idx = [f.hologram_index if f.lit else -1 for f in plan.frames]
@@ -310,7 +311,6 @@ def plan_layers(plan) -> list[tuple]:
     """
     if not plan.holograms:
         return []
-    from stimplan.plan import REFERENCE_POWER_MW
 
     pred0 = plan.holograms[0].prediction
     peak = 0.0

@@ -13,6 +13,7 @@ from dataclasses import dataclass, field
 from napari.utils.notifications import show_warning
 
 from stimplan.cautions import CAUTION_SHORT, CAUTIONS
+from stimplan.plan.evaluate import stimulus_exposures
 
 __all__ = [
     "StimulusFigures",
@@ -127,7 +128,7 @@ def readout_from_plan(plan, title: str | None = None) -> Readout:
         lit = [f for f in plan.frames if f.lit and f.hologram_index == sp.hologram_index]
         power = lit[0].power_mw if lit else 0.0
         h, m = sp.hologram_figures, sp.mask_figures
-        exp = plan.stimulus_exposure.get(sp.hologram_index)
+        exp = stimulus_exposures(plan).get(sp.hologram_index)
         rows.append(
             StimulusFigures(
                 name=lit[0].stimulus if lit else sp.name,
@@ -241,8 +242,9 @@ def plan_alerts(plan, subject: str = "the sequence") -> list[str]:
             f"{e.binding_text()}. {CAUTION_SHORT}"
         )
     names = {sp.hologram_index: sp for sp in plan.holograms}
-    for hi, a in sorted(plan.stimulus_exposure.items()):
-        if a.verdict == "above" and len(plan.stimulus_exposure) > 1:
+    own = stimulus_exposures(plan)
+    for hi, a in sorted(own.items()):
+        if a.verdict == "above" and len(own) > 1:
             frames = [f.index for f in plan.frames if f.hologram_index == hi and f.lit]
             shown = ", ".join(str(i) for i in frames[:8]) + (" ..." if len(frames) > 8 else "")
             out.append(

@@ -7,18 +7,21 @@ more coarsely, so that they open in seconds rather than half a minute).
 
 from __future__ import annotations
 
+from stimplan.holography import IftaSettings, design_hologram
+from stimplan.plan import plan_sequence
+from stimplan.scenarios import load_scenario, scenario_target
+
 from ._layers import grid_placement, plan_layers
+from ._readout import announce
 
 __all__ = ["demo_retina", "demo_rat_grating_acuity", "demo_human_letter_acuity"]
 
 
 def demo_retina() -> list[tuple]:
     """Target, SLM phase and predicted retinal irradiance of the quick demo, as layer tuples."""
-    from stimplan.demo import demo_system, demo_target
-    from stimplan.holography import IftaSettings, design_hologram
 
-    system = demo_system(quick=True)
-    target = demo_target(system)
+    system = load_scenario(quick=True).system
+    target = scenario_target(system)
     holo = design_hologram(target, system, IftaSettings(method="mraf", iterations=40, seed=1))
     pred = holo.predict(system)
     top = float(pred.irradiance_mw_per_mm2.max()) or 1.0
@@ -42,12 +45,8 @@ def demo_retina() -> list[tuple]:
 
 
 def _scenario(name: str) -> list[tuple]:
-    from stimplan.demo import demo_spec
-    from stimplan.plan import plan_sequence
 
-    from ._readout import announce
-
-    plan = plan_sequence(demo_spec(quick=True, name=name), progress=True)
+    plan = plan_sequence(load_scenario(name, quick=True), progress=True)
     announce(plan)
     return plan_layers(plan)
 

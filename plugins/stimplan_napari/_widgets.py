@@ -33,6 +33,12 @@ from napari.utils.notifications import show_error, show_info
 
 from stimplan.cautions import CAUTION_SHORT, CAUTIONS
 from stimplan.errors import StimplanError
+from stimplan.holography import METHODS
+from stimplan.implant import implant_names
+from stimplan.plan import plan_sequence
+from stimplan.plan.memory import check_memory
+from stimplan.present.export import export_plan
+from stimplan.sequence import load_sequence
 
 from ._compute import (
     NO_IMPLANT,
@@ -263,8 +269,6 @@ class StimulusPanel(Container):
     def __init__(self, viewer: napari.viewer.Viewer) -> None:
         super().__init__(labels=True)
         self._viewer = viewer
-        from stimplan.holography import METHODS
-        from stimplan.implant import implant_names
 
         first = next(iter(OPTICS_PRESETS))
         self.optics = ComboBox(label="optics", choices=[*OPTICS_PRESETS, OPTICS_FILE], value=first)
@@ -581,7 +585,6 @@ class SequencePanel(Container):
     # -- export ------------------------------------------------------------------------------
     def export(self, *_: Any) -> Path | None:
         """Export the plan (the button's action); refuses above the limit without a reason."""
-        from stimplan.present.export import export_plan
 
         if self.plan is None:
             self.export_status.value = "plan a sequence first"
@@ -619,9 +622,6 @@ class SequencePanel(Container):
 
 
 def _plan_file(path: str, progress: Callable[[int, int], None]):
-    from stimplan.plan import plan_sequence
-    from stimplan.plan.memory import check_memory
-    from stimplan.sequence import load_sequence
 
     spec = load_sequence(path)
     check_memory(spec)

@@ -42,6 +42,7 @@ from ..errors import ConfigError
 from ..grid import RetinalGrid
 from . import kernels
 from .kernels import gather_scaled
+from .quantize import grey_map_for
 
 __all__ = [
     "far_field",
@@ -469,7 +470,6 @@ def predict_from_levels(level_index: np.ndarray, system, **kwargs) -> RetinalPre
     .. [1] J. W. Goodman, *Introduction to Fourier Optics*, 3rd ed. (2005), §4.2 and §7.2 (phase
        levels of an SLM).
     """
-    from .quantize import grey_map_for
 
     lut = grey_map_for(system.slm)
     levels = np.asarray(level_index)

@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import copy
 from dataclasses import dataclass, field
-from functools import cached_property
 
 import numpy as np
 
@@ -15,12 +14,10 @@ from ..exposure import (
     ExposureAssessment,
 )
 from ..metrics import PatternMetrics
-from .progress import stage_ticker
 from .spool import (
     Spooled,
     spooled_value,
 )
-from .wiring import assess_frames
 
 __all__ = ["StimulusPlan", "FramePlan", "Plan"]
 
@@ -169,11 +166,12 @@ class Plan:
     frames : tuple of FramePlan
     exposure : ExposureAssessment or None
         The hologram sequence against the limits (None if nothing is lit).
-    mask_exposure : ExposureAssessment or None
-        The same timeline through the amplitude mask at the same powers;
-        computed on first use.
-    stimulus_exposure : dict of int to ExposureAssessment
-        Each hologram's frames alone (by hologram index); computed on first use.
+    evaluations : dict
+        Assessments asked for later, kept for the next caller
+        (:mod:`stimplan.plan.evaluate`: the mask, each hologram alone).
+
+    A plan planned with ``store="disk"`` keeps its large arrays in a spool
+    folder until :meth:`close` (or the end of a ``with`` block).
     """
 
     spec: object
@@ -186,57 +184,23 @@ class Plan:
     timings_s: dict = field(default_factory=dict)
     #: Largest disc powers of the plan's maps, shared by its exposure assessments.
     maxima_cache: dict = field(default_factory=dict, repr=False)
-    #: ``progress(stage, done, total)`` for the assessments run on first use, or None.
+    #: Assessments run later by :mod:`stimplan.plan.evaluate`, by name.
+    evaluations: dict = field(default_factory=dict, repr=False)
+    #: ``progress(stage, done, total)`` for the assessments run later, or None.
     progress: object = field(default=None, repr=False, compare=False)
 
-    def _assess(self, stage: str, frames, which: str, power_of=None):
-        """Assess ``frames`` through ``which`` with the plan's cache, reporting ``stage``."""
-        wl = self.spec.system.illumination.wavelength_nm
-        try:
-            return assess_frames(
-                frames,
-                self.stimuli,
-                which,
-                wl,
-                self.spec,
-                power_of=power_of,
-                cache=self.maxima_cache,
-                progress=stage_ticker(self.progress, stage),
-            )
-        finally:
-            close = getattr(self.progress, "close", None)
-            if close is not None:
-                close()
+    def close(self) -> None:
+        """Remove the plan's spool folder (if it has one). The plan's spooled arrays
+        cannot be read afterwards; closing twice is harmless."""
+        cleanup = getattr(self.spool, "cleanup", None)
+        if cleanup is not None:
+            cleanup()
 
-    @cached_property
-    def mask_exposure(self) -> ExposureAssessment | None:
-        """The timeline through the amplitude mask at the same laser powers."""
-        return self._assess("mask exposure", self.frames, "mask")
+    def __enter__(self) -> Plan:
+        return self
 
-    @cached_property
-    def mask_exposure_equal_irradiance(self) -> ExposureAssessment | None:
-        """The timeline through the amplitude mask at the laser powers that give the ON
-        pixels the same irradiance as the holograms (:meth:`mask_power_for`); None
-        without an implant."""
-        if self.spec.implant is None:
-            return None
-        return self._assess(
-            "mask exposure, equal irradiance", self.frames, "mask", self.mask_power_for
-        )
-
-    @cached_property
-    def stimulus_exposure(self) -> dict[int, ExposureAssessment]:
-        """Exposure of each hologram's frames on their own, by hologram index."""
-        if len(self.holograms) == 1:
-            only = self.holograms[0].hologram_index
-            return {} if self.exposure is None else {only: self.exposure}
-        out = {}
-        for sp in self.holograms:
-            own = [f for f in self.frames if f.hologram_index == sp.hologram_index]
-            a = self._assess(f"exposure of {sp.name}", own, "hologram")
-            if a is not None:
-                out[sp.hologram_index] = a
-        return out
+    def __exit__(self, *exc) -> None:
+        self.close()
 
     @property
     def seed(self) -> int:
@@ -252,24 +216,6 @@ class Plan:
             return 0.0
         last = self.frames[-1]
         return last.start_ms + last.duration_ms
-
-    def max_laser_power_mw(self, which: str = "hologram") -> float:
-        """Largest peak frame power (mW) when every frame's power is scaled alike and every
-        rule, and the protocol cap, stays within its limit.
-
-        Parameters
-        ----------
-        which : {"hologram", "mask"}
-            The holograms, or the amplitude mask shown at the same powers.
-        """
-        a = self.exposure if which == "hologram" else self.mask_exposure
-        if a is None:
-            return float("inf")
-        worst = max(a.worst_ratio, 0.0)
-        if a.protocol is not None:
-            worst = max(worst, a.protocol.worst_ratio)
-        peak = max((f.power_mw for f in self.frames if f.lit), default=0.0)
-        return float("inf") if worst == 0 else peak / worst
 
     def mask_power_for(self, frame: FramePlan) -> float | None:
         """Laser power the amplitude mask needs for the frame's ON-pixel irradiance, mW.

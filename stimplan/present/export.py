@@ -39,6 +39,7 @@ from .._atomic import atomic_folder
 from ..cautions import CAUTIONS
 from ..errors import ConfigError, ExportError, ExposureLimitError, InputFileError, IntegrityError
 from ..holography.quantize import grey_map_for
+from ..plan.evaluate import mask_exposure
 
 __all__ = [
     "is_export_folder",
@@ -323,6 +324,7 @@ def export_plan(
         files.append(_write_timeline(tmp, plan))
         if fail_after == "timeline":
             raise RuntimeError("simulated failure after the timeline")
+        mask = mask_exposure(plan)
         manifest = {
             "format": EXPORT_FORMAT,
             "stimplan_version": __version__,
@@ -343,7 +345,7 @@ def export_plan(
             "grey_lookup": _lookup_entry(plan.spec.system.slm),
             "frames": [_frame_entry(fr) for fr in plan.frames],
             "exposure": None if plan.exposure is None else plan.exposure.as_dict(),
-            "mask_exposure": None if plan.mask_exposure is None else plan.mask_exposure.as_dict(),
+            "mask_exposure": None if mask is None else mask.as_dict(),
             "verdict": plan.verdict,
             "acknowledgement": ack,
             "cautions": CAUTIONS,

@@ -20,6 +20,7 @@ import numpy as np
 from .. import __version__
 from .._atomic import atomic_file
 from ..cautions import CAUTIONS, EDITION
+from ..plan.evaluate import mask_exposure, max_laser_power_mw
 
 __all__ = ["render_report", "write_report"]
 
@@ -186,7 +187,7 @@ def _sequence_figures(plan) -> list[tuple[str, str]]:
         x = np.arange(len(rules), dtype=float)
         vals = [max(plan.exposure.rules[r].ratio, 1e-12) for r in rules]
         ax.bar(x - 0.2, vals, 0.4, label="hologram", color="tab:red")
-        mask_eq = plan.mask_exposure_equal_irradiance
+        mask_eq = mask_exposure(plan, equal_irradiance=True)
         if mask_eq is not None:
             mvals = [max(mask_eq.rules[r].ratio, 1e-12) for r in rules]
             ax.bar(x + 0.2, mvals, 0.4, label="mask, same ON-pixel irradiance", color="tab:gray")
@@ -270,22 +271,21 @@ def render_report(plan) -> str:
             ("largest dose", f"{e.max_dose_mj_per_mm2:.3g} mJ/mm²"),
             (
                 "largest uniform power scaling within every limit",
-                f"peak frame power {plan.max_laser_power_mw('hologram'):.3g} mW "
-                f"(the mask at the same powers: {plan.max_laser_power_mw('mask'):.3g} mW)",
+                f"peak frame power {max_laser_power_mw(plan, 'hologram'):.3g} mW "
+                f"(the mask at the same powers: {max_laser_power_mw(plan, 'mask'):.3g} mW)",
             ),
             ("basis", e.basis),
         ]
         if e.protocol is not None:
             rows.append(("protocol cap", e.protocol.describe()))
-        if plan.mask_exposure is not None:
-            rows.append(
-                ("mask at the same powers", f"{plan.mask_exposure.worst_ratio:.3g} of the limit")
-            )
-        if plan.mask_exposure_equal_irradiance is not None:
+        mask, mask_eq = mask_exposure(plan), mask_exposure(plan, equal_irradiance=True)
+        if mask is not None:
+            rows.append(("mask at the same powers", f"{mask.worst_ratio:.3g} of the limit"))
+        if mask_eq is not None:
             rows.append(
                 (
                     "mask at the powers that give the same ON-pixel irradiance",
-                    f"{plan.mask_exposure_equal_irradiance.worst_ratio:.3g} of the limit",
+                    f"{mask_eq.worst_ratio:.3g} of the limit",
                 )
             )
         parts.append(_table(rows))

@@ -9,6 +9,7 @@ import sys
 
 from .. import __version__
 from ..cautions import CAUTIONS
+from ..plan.evaluate import mask_exposure, max_laser_power_mw, stimulus_exposures
 from .export import json_safe
 
 __all__ = ["stimulus_rows", "plan_summary", "print_table"]
@@ -22,7 +23,7 @@ def stimulus_rows(plan) -> list[dict]:
         names = sorted({f.stimulus for f in frames}) or [sp.name]
         power = frames[0].power_mw if frames else 0.0
         h, m = sp.hologram_figures, sp.mask_figures
-        exp = plan.stimulus_exposure.get(sp.hologram_index)
+        exp = stimulus_exposures(plan).get(sp.hologram_index)
         first = frames[0] if frames else None
         rows.append(
             {
@@ -48,6 +49,8 @@ def stimulus_rows(plan) -> list[dict]:
 def plan_summary(plan) -> dict:
     """Everything `check --json` prints."""
     e = plan.exposure
+    mask = mask_exposure(plan)
+    mask_eq = mask_exposure(plan, equal_irradiance=True)
     out = {
         "title": plan.spec.title,
         "stimplan_version": __version__,
@@ -68,15 +71,11 @@ def plan_summary(plan) -> dict:
             "protocol": None
             if e is None or e.protocol is None
             else {"worst_ratio": e.protocol.worst_ratio, "verdict": e.protocol.verdict},
-            "mask_worst_ratio": None
-            if plan.mask_exposure is None
-            else plan.mask_exposure.worst_ratio,
-            "mask_equal_irradiance_worst_ratio": None
-            if plan.mask_exposure_equal_irradiance is None
-            else plan.mask_exposure_equal_irradiance.worst_ratio,
+            "mask_worst_ratio": None if mask is None else mask.worst_ratio,
+            "mask_equal_irradiance_worst_ratio": None if mask_eq is None else mask_eq.worst_ratio,
             "max_peak_frame_power_mw": {
-                "hologram": plan.max_laser_power_mw("hologram"),
-                "mask": plan.max_laser_power_mw("mask"),
+                "hologram": max_laser_power_mw(plan, "hologram"),
+                "mask": max_laser_power_mw(plan, "mask"),
             },
         },
         "cautions": CAUTIONS,

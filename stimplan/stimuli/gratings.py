@@ -24,7 +24,7 @@ from typing import Any, Literal
 import numpy as np
 
 from .. import validate
-from ..acuity import bar_width_um_from_px, period_um_from_cpd
+from ..acuity import bar_width_um_from_px, cpd_from_period_um, period_um_from_cpd, um_per_deg_of
 from ..errors import ConfigError
 from ..grid import RetinalGrid
 from ..optics.system import Eye
@@ -151,7 +151,6 @@ class Grating(Figure):
 
     def cycles_per_deg(self, eye: Eye | float) -> float:
         """Spatial frequency in cycles per degree for ``eye``."""
-        from ..acuity import cpd_from_period_um
 
         return cpd_from_period_um(self.period_um, eye)
 
@@ -276,7 +275,6 @@ class Checkerboard(Figure):
     @classmethod
     def from_check_deg(cls, check_deg: float, eye: Eye | float, **kwargs: Any) -> Checkerboard:
         """Checks of ``check_deg`` degrees of visual angle."""
-        from ..acuity import um_per_deg_of
 
         deg = validate.number("checkerboard.check_deg", check_deg, lo=0, lo_open=True)
         return cls(check_um=deg * um_per_deg_of(eye), **kwargs)

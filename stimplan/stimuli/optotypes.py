@@ -41,6 +41,7 @@ from ..acuity import (
     mar_from_decimal,
     mar_from_logmar,
     mar_from_snellen,
+    um_to_arcmin,
 )
 from ..errors import ConfigError
 from ..optics.system import Eye
@@ -123,7 +124,6 @@ class Optotype(Figure):
 
     def mar_arcmin(self, eye: Eye | float) -> float:
         """MAR of the symbol in arcmin for ``eye``."""
-        from ..acuity import um_to_arcmin
 
         return um_to_arcmin(self.unit_um, eye)
 
