@@ -118,7 +118,7 @@ class ImplantComparison:
         return self.aware.on_power_uw / self.mask.on_power_uw
 
 
-def mask_for_implant(mask: AmplitudeMask, implant, margin: float = 1.1) -> AmplitudeMask:
+def mask_for_implant(mask: AmplitudeMask, implant, *, margin: float = 1.1) -> AmplitudeMask:
     """The mask with its image sized to the implant's footprint (× ``margin``) if unset."""
     if mask.field_width_um is not None:
         return mask

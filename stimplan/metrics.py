@@ -219,7 +219,7 @@ class PatternMetrics:
         return dict(self.__dict__)
 
 
-def pattern_metrics(prediction, target, lit: np.ndarray | None = None) -> PatternMetrics:
+def pattern_metrics(prediction, target, *, lit: np.ndarray | None = None) -> PatternMetrics:
     """All of :class:`PatternMetrics` for a prediction and its target.
 
     Parameters

@@ -27,7 +27,7 @@ def test_pattern_metrics_follow_their_definitions(rng):
     )
     pred = holo.predict(system)
     lit = holo.target.region_on(pred.grid, "lit")
-    got = pattern_metrics(pred, holo.target, lit)
+    got = pattern_metrics(pred, holo.target, lit=lit)
 
     irr = pred.irradiance_mw_per_mm2.astype(np.float64)
     inside = lit >= 0.999

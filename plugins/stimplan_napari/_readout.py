@@ -14,6 +14,7 @@ from napari.utils.notifications import show_warning
 
 from stimplan.cautions import CAUTION_SHORT, CAUTIONS
 from stimplan.plan.evaluate import stimulus_exposures
+from stimplan.present.summary import stimulus_rows
 
 __all__ = [
     "StimulusFigures",
@@ -123,23 +124,19 @@ def readout_from_plan(plan, title: str | None = None) -> Readout:
     -------
     Readout
     """
-    rows = []
-    for sp in plan.holograms:
-        lit = [f for f in plan.frames if f.lit and f.hologram_index == sp.hologram_index]
-        power = lit[0].power_mw if lit else 0.0
-        h, m = sp.hologram_figures, sp.mask_figures
-        exp = stimulus_exposures(plan).get(sp.hologram_index)
-        rows.append(
-            StimulusFigures(
-                name=lit[0].stimulus if lit else sp.name,
-                laser_power_mw=power,
-                efficiency=float(sp.metrics.efficiency),
-                on_power_uw=None if h is None else h.on_power_uw * power,
-                mask_on_power_uw=None if m is None else m.on_power_uw * power,
-                exposure_ratio=None if exp is None else exp.worst_ratio,
-                verdict=None if exp is None else exp.verdict,
-            )
+    # the one summary of a plan (the CLI's table and `check --json` use the same rows)
+    rows = [
+        StimulusFigures(
+            name=row["name"],
+            laser_power_mw=row["laser_power_mw"],
+            efficiency=float(row["efficiency"]),
+            on_power_uw=row["on_pixel_power_uw"]["hologram"],
+            mask_on_power_uw=row["on_pixel_power_uw"]["mask"],
+            exposure_ratio=row["exposure_ratio"],
+            verdict=row["verdict"],
         )
+        for row in stimulus_rows(plan)
+    ]
     e = plan.exposure
     system = plan.spec.system
     return Readout(

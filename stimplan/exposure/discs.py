@@ -247,6 +247,7 @@ def max_disc_power(
     irradiance_mw_per_mm2: Any,
     grid: RetinalGrid,
     alpha_mrad: float,
+    *,
     eye: EyeModel = HUMAN_EYE,
 ) -> tuple[float, float, float]:
     """Largest power within a disc of angular diameter alpha centred on a sample of the map.

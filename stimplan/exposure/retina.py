@@ -123,7 +123,7 @@ def power_into_eye_mw(corneal_irradiance_w_per_m2: float) -> float:
 
 
 def retinal_irradiance_mw_per_mm2(
-    corneal_irradiance_w_per_m2: float, alpha_mrad: float, eye: EyeModel = HUMAN_EYE
+    corneal_irradiance_w_per_m2: float, alpha_mrad: float, *, eye: EyeModel = HUMAN_EYE
 ) -> float:
     """Retinal irradiance ``tau * P / (pi d^2 / 4)`` of a uniform image of angle alpha.
 

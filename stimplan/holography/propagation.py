@@ -136,7 +136,7 @@ def pixel_aperture_envelope(
     .. [1] Goodman (2005), §4.2.2, eq. (4-28): Fraunhofer pattern of a
        rectangular aperture.
     """
-    ey, ex = pixel_aperture_axes(shape, samples_per_order, aperture_fraction, np.float64)
+    ey, ex = pixel_aperture_axes(shape, samples_per_order, aperture_fraction, dtype=np.float64)
     return (ey[:, np.newaxis] * ex[np.newaxis, :]).astype(np.float32)
 
 
@@ -144,6 +144,7 @@ def pixel_aperture_axes(
     shape: tuple[int, int],
     samples_per_order: tuple[int, int],
     aperture_fraction: float,
+    *,
     dtype=np.float32,
 ) -> tuple[np.ndarray, np.ndarray]:
     """The two 1-D factors ``(rows, cols)`` of :func:`pixel_aperture_envelope`.

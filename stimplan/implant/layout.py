@@ -236,7 +236,7 @@ class Implant:
         tol = 1e-9 * max(grid.width_um, grid.height_um)
         return e[0] >= x0 - tol and e[1] <= x1 + tol and e[2] >= y0 - tol and e[3] <= y1 + tol
 
-    def check_fits(self, grid: RetinalGrid, field: str = "implant") -> None:
+    def check_fits(self, grid: RetinalGrid, *, field: str = "implant") -> None:
         """Raise :class:`ConfigError` unless every pixel cell lies inside the grid's field."""
         if not self.fits_in(grid):
             x0, x1, y0, y1 = grid.extent_um

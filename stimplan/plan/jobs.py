@@ -93,7 +93,7 @@ def _evaluate(name, stim, index, spec, system, holo, workers, design=None) -> St
     design = stim.render(grid) if design is None else design
     lit = holo.target.region_on(system.prediction_grid(spec.oversample), "lit")
     pred = holo.predict(system, oversample=spec.oversample, workers=workers, signal_region=lit)
-    metrics = pattern_metrics(pred, holo.target, lit)
+    metrics = pattern_metrics(pred, holo.target, lit=lit)
     del lit
     pg = pred.grid
     mp, mask = project_mask_on_implant(
@@ -245,7 +245,7 @@ def plan_jobs(
     return jobs
 
 
-def task_function(job: Job, index: int, spec, system, tick, spool: str | None = None):
+def task_function(job: Job, index: int, spec, system, tick, *, spool: str | None = None):
     stim = spec.stimuli[job.names[0]]
     name = job.names[0]
     evaluate = _evaluate

@@ -111,7 +111,7 @@ def plan_sequence(
     chained = n_bases < len(jobs)
     tasks = [
         Task(
-            task_function(jobs[i], i, spec, system, it_tick, spool),
+            task_function(jobs[i], i, spec, system, it_tick, spool=spool),
             (position[jobs[i].base],) if jobs[i].base >= 0 else (),
             jobs[i].kind,
             (n - lanes,) if chained and lanes <= n < n_bases else (),

@@ -22,7 +22,15 @@ __all__ = ["assess_frames", "orders_margin", "with_orders_note"]
 
 
 def assess_frames(
-    frames, plans, which: str, wavelength_nm: float, spec, power_of=None, cache=None, progress=None
+    frames,
+    plans,
+    which: str,
+    wavelength_nm: float,
+    spec,
+    *,
+    power_of=None,
+    cache=None,
+    progress=None,
 ):
     """Exposure of the timeline.
 

@@ -121,7 +121,7 @@ class Stimulus:
         # the compositions register themselves as kinds: no import back up
         return STIMULUS_KINDS["inverted"](stimulus=self)
 
-    def masked(self, implant: Any, region: str = "active") -> Stimulus:
+    def masked(self, implant: Any, *, region: str = "active") -> Stimulus:
         """This stimulus, zero outside an implant's active areas (or its footprint)."""
         return STIMULUS_KINDS["masked"](stimulus=self, implant=implant, region=region)
 
