@@ -105,7 +105,7 @@ class StimulusPlan:
             k: (
                 v
                 if isinstance(v, Spooled)
-                else Spooled.write(v, folder, f"{self.hologram_index:05d}-{k}.pkl")
+                else Spooled.write(v, folder, f"{self.hologram_index:05d}-{k}")
             )
             for k, v in self._parts.items()
         }
