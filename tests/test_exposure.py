@@ -463,6 +463,7 @@ def test_shared_maxima_cache_gives_the_same_assessment():
     alone = ex.assess_sequence(frames[1:], grid, 880.0, maxima_cache=cache)
     fresh = ex.assess_sequence(frames[1:], grid, 880.0)
     assert alone.worst_ratio == fresh.worst_ratio
+    assert alone.notes == fresh.notes  # the same notes, also the count of loose maps
     assert whole.worst_ratio == ex.assess_sequence(frames, grid, 880.0).worst_ratio
 
 
@@ -511,3 +512,18 @@ def test_a_two_map_sequence_against_a_direct_evaluation_at_every_place():
                 brute = max(brute, t.worst_ratio)
     assert got.worst_ratio >= brute * (1 - 2e-3)  # the reference kernel is subsampled
     assert got.found_ratio <= got.worst_ratio
+
+
+def test_loose_maps_are_counted_also_from_the_cache():
+    # A uniform plateau wider than the refinement's cell budget keeps the grown-disc
+    # bound at small discs; the note that counts such maps must not change when the
+    # maxima come from a shared cache. (common practice)
+    grid = RetinalGrid((64, 64), 10.0, 10.0)
+    plateau = np.zeros(grid.shape, np.float32)
+    plateau[8:56, 8:56] = 2.0
+    frames = [ex.Frame(plateau, _train(0), "p", key="plateau")]
+    cache: dict = {}
+    first = ex.assess_sequence(frames, grid, 880.0, maxima_cache=cache)
+    again = ex.assess_sequence(frames, grid, 880.0, maxima_cache=cache)
+    loose = [n for n in first.notes if "stopped at its budget" in n]
+    assert loose and [n for n in again.notes if "stopped at its budget" in n] == loose

@@ -60,6 +60,8 @@ class MapSweep:
         tags = [(key, g.shape, g.pitch_x_um, g.pitch_y_um, d) for d in diameters]
         cache = self.cache if (key is not None and self.cache is not None) else {}
         todo = [d for d, t in zip(diameters, tags, strict=True) if t not in cache]
+        # maxima shared through the cache still count when their bound stayed loose
+        self.loose += sum(1 for t in tags if t in cache and ("loose", t) in cache)
         if todo:
             prepared = PreparedMap.of(irr, g.pitch_x_um, g.pitch_y_um)
             f32 = irr if irr.dtype == np.float32 else irr.astype(np.float32)
@@ -99,6 +101,7 @@ class MapSweep:
                     r, c, value = res.row, res.col, max(res.found_mw, res.bound_mw)
                     if not res.tight:
                         self.loose += 1
+                        cache[("loose", (key, g.shape, g.pitch_x_um, g.pitch_y_um, d))] = True
                 cache[(key, g.shape, g.pitch_x_um, g.pitch_y_um, d)] = (r, c, value)
                 if self.progress is not None:
                     self.progress()
