@@ -217,6 +217,10 @@ def test_over_limit_sequence_warns_and_refuses_export(
     assert all("not a safety approval" in m for m in warnings_seen)
     readout = _dock(viewer, "Exposure and efficiency")
     assert "ABOVE" in readout.verdict.value
+    # the panel says what binds: here the protocol cap, with the figure that decides
+    assert "what binds: protocol cap" in readout.figures.value
+    assert "the protocol cap binds" in readout.figures.value
+    assert any("protocol cap" in m for m in warnings_seen)
 
     panel.export_folder.value = tmp_path / "refused"
     assert panel.export() is None
