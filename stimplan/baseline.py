@@ -127,6 +127,15 @@ def _shown_on_field(t, leak, row, col, out):  # pragma: no cover - compiled
             out[i, j] = ((t[i, j] * keep + leak) * r) * col[j]
 
 
+def _cell_fraction_inside(centres_um, pitch_um: float, centre_um: float, width_um: float):
+    """Fraction (float32) of each sample's cell ``[c - p/2, c + p/2]`` inside the interval
+    of ``width_um`` about ``centre_um``."""
+    c = np.asarray(centres_um, dtype=np.float64)
+    lo = np.maximum(c - pitch_um / 2, centre_um - width_um / 2)
+    hi = np.minimum(c + pitch_um / 2, centre_um + width_um / 2)
+    return (np.clip(hi - lo, 0.0, pitch_um) / pitch_um).astype(np.float32)
+
+
 def project_mask(
     intensity: np.ndarray,
     grid: RetinalGrid,
@@ -177,10 +186,21 @@ def project_mask(
         )
     cx = validate.number("mask.field_center_um[0]", field_center_um[0])
     cy = validate.number("mask.field_center_um[1]", field_center_um[1])
-    # the field is a rectangle: one row factor and one column factor
-    in_x = (np.abs(grid.x_um - cx) <= w / 2).astype(np.float32)
-    in_y = (np.abs(grid.y_um - cy) <= h / 2).astype(np.float32)
-    n_inside = float(in_x.sum()) * float(in_y.sum())
+    # the field is a rectangle: one row factor and one column factor, each the fraction
+    # of a sample's cell inside the field (so the lit area is w x h exactly, also when
+    # an edge falls on a sample centre); without a field size the field is the grid
+    if mask.field_width_um is None:
+        in_x = np.ones(grid.cols, dtype=np.float32)
+    else:
+        in_x = _cell_fraction_inside(grid.x_um, grid.pitch_x_um, cx, w)
+    if mask.field_height_um is None:
+        in_y = np.ones(grid.rows, dtype=np.float32)
+    else:
+        in_y = _cell_fraction_inside(grid.y_um, grid.pitch_y_um, cy, h)
+    # the field's own area in samples: light of a field that runs off the grid is lost
+    n_inside = (w / grid.pitch_x_um) * (h / grid.pitch_y_um)
+    if not (float(in_x.sum()) > 0 and float(in_y.sum()) > 0):
+        raise ConfigError("mask.field_center_um", (cx, cy), "a field that overlaps the grid")
     leak = np.float32(1.0 / mask.contrast_ratio)
     scale = p * mask.efficiency * tau / grid.sample_area_mm2
     if illumination is None:

@@ -29,6 +29,31 @@ def test_mask_irradiance_is_power_times_transmission_over_area():
     assert mp.irradiance_mw_per_mm2[0, 0] == pytest.approx(e_lit / 500.0, rel=1e-4)
 
 
+@pytest.mark.parametrize("width_um", [40.0, 41.0, 45.0])
+def test_a_small_field_is_exactly_its_area(width_um):
+    # The same closed form for a field smaller than the grid whose edges fall on sample
+    # centres (40 µm on 10 µm samples) or between them: E_lit = P T tau / (w h), and the
+    # power on the retina is P T tau. (A field counted by sample centres came out one
+    # sample too wide, 9 % dim.)
+    # Source: den Boer, Active Matrix Liquid Crystal Displays (2005), §6.1.
+    grid = RetinalGrid((20, 20), 10.0, 10.0)
+    stim = np.ones(grid.shape, np.float32)
+    mask = AmplitudeMask(
+        "lcd",
+        efficiency=0.07,
+        contrast_ratio=500.0,
+        field_width_um=width_um,
+        field_height_um=width_um,
+    )
+    mp = project_mask(stim, grid, mask, power_mw=10.0, eye_transmission=0.8)
+    e_lit = 10.0 * 0.07 * 0.8 / (width_um * width_um * 1e-6)
+    centre = grid.rows // 2, grid.cols // 2
+    assert mp.irradiance_mw_per_mm2[centre] == pytest.approx(e_lit, rel=1e-5)
+    total = float(mp.irradiance_mw_per_mm2.sum(dtype=np.float64)) * grid.sample_area_mm2
+    assert total == pytest.approx(10.0 * 0.07 * 0.8, rel=1e-5)
+    assert mp.field_area_mm2 == pytest.approx(width_um * width_um * 1e-6, rel=1e-6)
+
+
 def test_hologram_gain_follows_area_ratio():
     # Source: REFERENCES [der]: gain = (eta_holo / T_mask) x (A_field / A_lit); the
     # measured gain must match that formula with the measured hologram efficiency.

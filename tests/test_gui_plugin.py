@@ -230,6 +230,10 @@ def test_over_limit_sequence_warns_and_refuses_export(
     out = panel.export()
     bundle = load_export(out)
     assert bundle.manifest["acknowledgement"]["reason"] == "bench test with a power meter, no eye"
+    # the same folder again: the panel names its own checkbox, not the command's flag
+    assert panel.export() is None
+    assert "replace an existing folder" in panel.export_status.value
+    assert "--force" not in panel.export_status.value
 
 
 def test_readers_and_writer(make_napari_viewer, tmp_path, warnings_seen):
@@ -306,3 +310,16 @@ def test_preview_opens_and_closes(tmp_path, warnings_seen):
     path = _write(tmp_path)
     assert preview(path, close_after_load=True) == 0
     assert main(["preview", str(path), "--close-after-load"]) == 0
+
+
+def test_size_fields_take_only_plausible_sizes(make_napari_viewer):
+    # Sizes are positive and bounded like the core's ranges (stimplan.ranges): a grating
+    # period of 0 or -1e6 µm is no stimulus. (common practice)
+    from stimplan.ranges import RANGES
+
+    viewer = make_napari_viewer()
+    panel = _dock(viewer, "Stimulus and hologram")
+    panel.kind.value = "grating"
+    period = next(w for w in panel.params if w.name == "period_um")
+    assert period.min > 0 and period.max == RANGES["retinal_length_um"].hi
+    assert "µm" in period.label

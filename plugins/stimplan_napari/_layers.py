@@ -46,7 +46,7 @@ LAYER_NAMES = {
     "target": "target (relative)",
     "phase": "SLM phase (rad, SLM plane)",
     "irradiance": "retina irradiance (mW/mm^2)",
-    "implant": "implant pixels (uW delivered)",
+    "implant": "implant pixels (µW delivered)",
     "outline": "implant pixels (outline)",
     "zero_order": "zero order",
     "sequence": "sequence retina (mW/mm^2)",

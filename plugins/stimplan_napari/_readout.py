@@ -165,12 +165,12 @@ def _g(x: float | None, spec: str = ".3g") -> str:
 def readout_text(r: Readout) -> str:
     """The readout as plain text, ending with the cautions."""
     lines = [r.title, ""]
-    lines.append("stimulus: laser mW | efficiency | ON pixel uW hologram / mask (gain) | exposure")
+    lines.append("stimulus: laser mW | efficiency | ON pixel µW hologram / mask (gain) | exposure")
     for s in r.stimuli:
         gain = s.gain_over_mask
         lines.append(
             f"{s.name}: {_g(s.laser_power_mw)} mW | {_g(s.efficiency, '.3f')} | "
-            f"{_g(s.on_power_uw)} / {_g(s.mask_on_power_uw)} uW"
+            f"{_g(s.on_power_uw)} / {_g(s.mask_on_power_uw)} µW"
             f"{'' if gain is None else f' ({gain:.3g}x)'} | "
             f"{_g(s.exposure_ratio)} of the limit, {s.verdict or '-'}"
         )

@@ -38,6 +38,7 @@ from stimplan.implant import implant_names
 from stimplan.plan import plan_sequence
 from stimplan.plan.memory import check_memory
 from stimplan.present.export import export_plan
+from stimplan.ranges import RANGES
 from stimplan.sequence import load_sequence
 
 from ._compute import (
@@ -221,7 +222,7 @@ def _wrapping(label: Label) -> Label:
 
 
 def _pretty(name: str) -> str:
-    for suffix, unit in (("_um", " (um)"), ("_deg", " (deg)"), ("_px", " (px)")):
+    for suffix, unit in (("_um", " (µm)"), ("_deg", " (°)"), ("_px", " (px)")):
         if name.endswith(suffix):
             return name[: -len(suffix)].replace("_", " ") + unit
     return name.replace("_", " ")
@@ -240,14 +241,41 @@ def _param_widget(name: str, hint: Any, start: Any, choices: tuple | None):
     if hint is str:
         return LineEdit(name=name, label=label, value=str(start))
     fine = name in ("contrast", "duty_cycle", "level")
+    lo, hi = (0.0, 1.0) if fine else _spin_limits(name)
     return FloatSpinBox(
         name=name,
         label=label,
-        value=float(start),
-        min=0.0 if fine else -1e6,
-        max=1.0 if fine else 1e6,
+        value=min(max(float(start), lo), hi),
+        min=lo,
+        max=hi,
         step=0.05 if fine else 1.0,
     )
+
+
+def _panel_words(message: str, checkbox: str) -> str:
+    """A core message in the panel's words: the command's ``--force`` is a checkbox here."""
+    return message.replace("pass --force", f"tick '{checkbox}'").replace(
+        "with --force", f"with '{checkbox}' ticked"
+    )
+
+
+#: The smallest step of a spin box above an open lower bound (sizes must be > 0).
+_ABOVE_ZERO = 0.01
+
+
+def _spin_limits(name: str) -> tuple[float, float]:
+    """A parameter's spin-box limits from the core's plausibility ranges
+    (:data:`stimplan.ranges.RANGES`): positions and angles may be negative, sizes
+    must be positive."""
+    if name.endswith("_deg"):
+        r = RANGES["angle_deg"]
+    elif name.startswith("center_") and name.endswith("_um"):
+        r = RANGES["retinal_position_um"]
+    elif name.endswith("_um"):
+        r = RANGES["retinal_length_um"]
+    else:
+        return -1e6, 1e6
+    return (r.lo + _ABOVE_ZERO if r.lo_open else r.lo), r.hi
 
 
 # -- stimulus and hologram ---------------------------------------------------------------
@@ -361,7 +389,7 @@ class StimulusPanel(Container):
         self.laser_power_mw.value = s.illumination.power_mw
         self.status.value = (
             f"{spec.title}: SLM {s.slm.pixels_x}x{s.slm.pixels_y}, "
-            f"field {s.field_width_um:.0f} um, {s.eye.name} eye"
+            f"field {s.field_width_um:.0f} µm, {s.eye.name} eye"
         )
 
     def request(self) -> StimulusRequest:
@@ -400,7 +428,7 @@ class StimulusPanel(Container):
         sp = result.stimulus_plan
         text = f"done: efficiency {sp.metrics.efficiency:.3f}"
         if result.pixel_power_uw is not None and result.on is not None and result.on.any():
-            text += f", {result.pixel_power_uw[result.on].mean():.3g} uW per ON pixel"
+            text += f", {result.pixel_power_uw[result.on].mean():.3g} µW per ON pixel"
         self.status.value = text
         panel = _readout_panel(self._viewer)
         if panel is not None:
@@ -613,8 +641,9 @@ class SequencePanel(Container):
                 acknowledge_reason=reason or None,
             )
         except StimplanError as exc:
-            self.export_status.value = "error: " + str(exc)
-            show_error("stimplan: " + str(exc))
+            msg = _panel_words(str(exc), self.replace_existing.text)
+            self.export_status.value = "error: " + msg
+            show_error("stimplan: " + msg)
             return None
         self.export_status.value = f"exported to {out}"
         show_info(f"stimplan: exported to {out}")
