@@ -537,6 +537,10 @@ class SequencePanel(Container):
             if panel is not None:
                 panel.show_plan(plan)
             announce(plan)
+            # open on the first lit frame, not on a dark pause
+            first = next((k for k, f in enumerate(plan.frames) if f.lit), None)
+            if first is not None and self._frame_axis() >= 0:
+                self._viewer.dims.set_current_step(self._frame_axis(), first)
         self._on_step()
 
     def _adopt(self, layer) -> None:
@@ -575,9 +579,10 @@ class SequencePanel(Container):
             what = f"{f.stimulus} (dark)"
         else:
             what = "dark pause"
+        n = len(self.plan.frames)
+        # counted from 0, as napari's slider shows it
         self.frame_info.value = (
-            f"frame {i + 1}/{len(self.plan.frames)}: {f.start_ms:.6g} ms + "
-            f"{f.duration_ms:.6g} ms, {what}"
+            f"frame {i} of 0-{n - 1}: {f.start_ms:.6g} ms + {f.duration_ms:.6g} ms, {what}"
         )
 
     def toggle_play(self, *_: Any) -> None:
