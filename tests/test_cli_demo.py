@@ -50,6 +50,8 @@ def test_check_json_has_the_documented_keys(seq, capsys):
     assert {"stimuli", "exposure", "cautions"} <= set(data)
     for s in data["stimuli"]:
         assert {"name", "efficiency", "on_pixel_power_uw", "on_pixel_cv"} <= set(s)
+        assert {"resolvable", "warnings", "finest_detail_um"} <= set(s)
+        assert isinstance(s["warnings"], list)
         assert {"hologram", "mask"} <= set(s["on_pixel_power_uw"])
         assert s["on_pixel_power_uw"]["hologram"] > s["on_pixel_power_uw"]["mask"]
         # Source: REFERENCES [der]: the mask needs (eta_holo/T_mask)(A_field/A_lit) times

@@ -36,7 +36,7 @@ STAGES = [
     {"implant"},
     {"stimuli"},
     {"exposure"},
-    {"comparison"},
+    {"comparison", "legibility"},
     {"sequence"},
     {"plan"},
     {"present"},

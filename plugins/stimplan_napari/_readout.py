@@ -58,6 +58,7 @@ class StimulusFigures:
     mask_on_power_uw: float | None
     exposure_ratio: float | None
     verdict: str | None
+    warnings: tuple[str, ...] = ()
 
     @property
     def gain_over_mask(self) -> float | None:
@@ -134,6 +135,7 @@ def readout_from_plan(plan, title: str | None = None) -> Readout:
             mask_on_power_uw=row["on_pixel_power_uw"]["mask"],
             exposure_ratio=row["exposure_ratio"],
             verdict=row["verdict"],
+            warnings=tuple(row["warnings"]),
         )
         for row in stimulus_rows(plan)
     ]
@@ -174,6 +176,7 @@ def readout_text(r: Readout) -> str:
             f"{'' if gain is None else f' ({gain:.3g}x)'} | "
             f"{_g(s.exposure_ratio)} of the limit, {s.verdict or '-'}"
         )
+        lines += [f"  legibility: {w}" for w in s.warnings]
     lines.append("")
     lines.append("exposure of the whole sequence (ratio to the limit of each rule):")
     if not r.rule_ratios:

@@ -21,6 +21,7 @@ from .. import __version__
 from .._atomic import atomic_file
 from ..cautions import CAUTIONS, EDITION
 from ..plan.evaluate import mask_exposure, max_laser_power_mw
+from .summary import stimulus_rows
 
 __all__ = ["render_report", "write_report"]
 
@@ -227,7 +228,8 @@ def render_report(plan) -> str:
         "<style>body{font-family:sans-serif;max-width:1200px;margin:auto;padding:1em}"
         "table{border-collapse:collapse;margin:.5em 0}th,td{border:1px solid #ccc;"
         "padding:2px 8px;text-align:left}th{background:#f4f4f4}.caution{border:2px solid "
-        "#c00;background:#fff4f4;padding:.6em}img{max-width:100%}</style></head><body>",
+        "#c00;background:#fff4f4;padding:.6em}.warning{color:#a40;font-weight:bold}"
+        "img{max-width:100%}</style></head><body>",
         f"<h1>{html.escape(spec.title)}</h1>",
         f"<p>stimplan {__version__}, seed {plan.seed}, created "
         f"{_dt.datetime.now(_dt.UTC).isoformat(timespec='seconds')}</p>",
@@ -293,6 +295,7 @@ def render_report(plan) -> str:
     for title, uri in _sequence_figures(plan):
         parts.append(f"<h3>{html.escape(title)}</h3><img src='{uri}' alt='{html.escape(title)}'>")
     parts.append("<h2>Stimuli</h2>")
+    legible = {r["hologram_index"]: r for r in stimulus_rows(plan)}
     for sp in plan.holograms:
         frames = [f for f in plan.frames if f.hologram_index == sp.hologram_index and f.lit]
         power = frames[0].power_mw if frames else 1.0
@@ -323,7 +326,18 @@ def render_report(plan) -> str:
                 ("ON-pixel CV, hologram", f"{h.on_cv:.3f}"),
                 ("ON/OFF contrast, hologram", f"{h.on_off_contrast:.3g}"),
             ]
+        row = legible[sp.hologram_index]
+        if row["resolvable"] is not None:
+            rows.append(
+                (
+                    "finest detail against the pixel pitch (sampling limit)",
+                    f"{row['finest_detail_um']:.3g} µm: "
+                    + ("resolvable" if row["resolvable"] else "NOT resolvable"),
+                )
+            )
         parts.append(_table(rows))
+        for w in row["warnings"]:
+            parts.append(f"<p class='warning'>{html.escape(w)}</p>")
         for title, uri in _stimulus_figures(plan, sp, power):
             parts.append(
                 f"<h4>{html.escape(title)}</h4><img src='{uri}' alt='{html.escape(title)}'>"

@@ -9,6 +9,7 @@ import sys
 
 from .. import __version__
 from ..cautions import CAUTIONS
+from ..legibility import legibility
 from ..plan.evaluate import mask_exposure, max_laser_power_mw, stimulus_exposures
 from .export import json_safe
 
@@ -25,6 +26,13 @@ def stimulus_rows(plan) -> list[dict]:
         h, m = sp.hologram_figures, sp.mask_figures
         exp = stimulus_exposures(plan).get(sp.hologram_index)
         first = frames[0] if frames else None
+        stim = plan.spec.stimuli.get(names[0])
+        implant = plan.spec.implant
+        leg = (
+            None
+            if stim is None or implant is None
+            else legibility(stim, implant.pitch_um, name=names[0])
+        )
         rows.append(
             {
                 "name": names[0],
@@ -41,6 +49,9 @@ def stimulus_rows(plan) -> list[dict]:
                 "on_pixel_cv": None if h is None else h.on_cv,
                 "exposure_ratio": None if exp is None else exp.worst_ratio,
                 "verdict": None if exp is None else exp.verdict,
+                "finest_detail_um": None if leg is None else leg.detail_um,
+                "resolvable": None if leg is None else leg.resolvable,
+                "warnings": [] if leg is None else list(leg.warnings),
             }
         )
     return rows
@@ -144,6 +155,9 @@ def print_table(plan, file=None) -> None:
             f"{e['mask_equal_irradiance_worst_ratio']:.3g} of the limit",
             file=file,
         )
+    for r in s["stimuli"]:
+        for w in r["warnings"]:
+            print(f"legibility: {w}", file=file)
     if e["edition"]:
         print(f"limits: {e['edition']}", file=file)
     print("CAUTION: " + CAUTIONS, file=file)
