@@ -325,3 +325,23 @@ def test_size_fields_take_only_plausible_sizes(make_napari_viewer):
     period = next(w for w in panel.params if w.name == "period_um")
     assert period.min > 0 and period.max == RANGES["retinal_length_um"].hi
     assert "µm" in period.label
+
+
+def test_an_optotype_can_be_sized_by_logmar(make_napari_viewer):
+    # logMAR 1.0 is a MAR of 10 arcmin; a Landolt C is 5 MAR high; the human eye's
+    # 288 µm/deg (Drasdo & Fowler 1974) makes that 5 * 10/60 * 288 = 240 µm.
+    # Source: Bailey & Lovie (1976); ISO 8596.
+    from stimplan_napari._compute import compute_stimulus
+
+    viewer = make_napari_viewer()
+    panel = _dock(viewer, "Stimulus and hologram")
+    panel.optics.value = "human letter-acuity demo"
+    panel.slm_pixels.value = 64
+    panel.iterations.value = 2
+    panel.kind.value = "landolt"
+    panel.param_widgets["size_by"].value = "logMAR"
+    panel.param_widgets["logmar"].value = 1.0
+    panel.implant_aware.value = False  # a 240 µm ring turns no 100 µm pixel half on
+    res = compute_stimulus(panel.request())
+    ring = res.plan.spec.stimuli["landolt"]
+    assert ring.height_um == pytest.approx(5 * 10 / 60 * 288.0, rel=1e-6)

@@ -24,7 +24,13 @@ from stimplan.plan import REFERENCE_POWER_MW, plan_sequence
 from stimplan.plan.memory import check_memory
 from stimplan.scenarios import SCENARIOS, load_scenario, with_slm_pixels
 from stimplan.sequence import StepSpec, load_sequence
-from stimplan.stimuli import E_ORIENTATIONS, LANDOLT_ORIENTATIONS, SLOAN_LETTERS, stimulus_from_dict
+from stimplan.stimuli import (
+    E_ORIENTATIONS,
+    LANDOLT_ORIENTATIONS,
+    SLOAN_LETTERS,
+    Optotype,
+    stimulus_from_dict,
+)
 from stimplan.stimuli.base import STIMULUS_KINDS
 
 __all__ = [
@@ -59,6 +65,9 @@ PANEL_KINDS = (
     "image",
 )
 #: Starting values of required stimulus sizes, µm (any value the user then edits).
+#: How the panel sizes an optotype: its height in µm, or its logMAR through the eye.
+SIZE_BY = ("height (µm)", "logMAR")
+
 _REQUIRED_DEFAULTS: Mapping[str, Any] = {
     "period_um": 220.0,
     "check_um": 110.0,
@@ -124,6 +133,10 @@ def stimulus_fields(kind: str) -> list[tuple[str, Any, Any, tuple | None]]:
         else:
             start = _REQUIRED_DEFAULTS.get((kind, f.name), _REQUIRED_DEFAULTS.get(f.name, 1.0))
         out.append((f.name, hint, start, choices))
+    if issubclass(cls, Optotype):
+        # an optotype's size by its height or by logMAR (through the optics' eye)
+        out.append(("size_by", str, SIZE_BY[0], SIZE_BY))
+        out.append(("logmar", float, 1.0, None))
     return out
 
 
@@ -238,6 +251,11 @@ def _one_step_spec(request: StimulusRequest):
     aware = bool(request.implant_aware) and implant is not None
     pitch = None if implant is None else implant.pitch_um
     params = dict(request.params)
+    size_by = params.pop("size_by", SIZE_BY[0])
+    logmar = params.pop("logmar", None)
+    if size_by == "logMAR":
+        params.pop("height_um", None)
+        params["logmar"] = logmar
     if request.kind == "image" and not str(params.get("path") or "").strip():
         raise ConfigError("image.path", params.get("path"), "an image file (PNG, TIFF, ...)")
     stim = stimulus_from_dict(request.kind, params, eye=system.eye, pitch_um=pitch)

@@ -248,7 +248,7 @@ def _param_widget(name: str, hint: Any, start: Any, choices: tuple | None):
         value=min(max(float(start), lo), hi),
         min=lo,
         max=hi,
-        step=0.05 if fine else 1.0,
+        step=0.05 if fine else (0.1 if name == "logmar" else 1.0),
     )
 
 
@@ -259,6 +259,10 @@ def _panel_words(message: str, checkbox: str) -> str:
     )
 
 
+#: logMAR the panel offers: about 20/6 to 20/20 000 (prosthetic acuities are 1-2).
+#: Source: Bailey & Lovie (1976): logMAR = log10(MAR / 1 arcmin); 20/x is MAR x/20.
+LOGMAR_LIMITS = (-0.5, 3.0)
+
 #: The smallest step of a spin box above an open lower bound (sizes must be > 0).
 _ABOVE_ZERO = 0.01
 
@@ -267,6 +271,8 @@ def _spin_limits(name: str) -> tuple[float, float]:
     """A parameter's spin-box limits from the core's plausibility ranges
     (:data:`stimplan.ranges.RANGES`): positions and angles may be negative, sizes
     must be positive."""
+    if name == "logmar":
+        return LOGMAR_LIMITS
     if name.endswith("_deg"):
         r = RANGES["angle_deg"]
     elif name.startswith("center_") and name.endswith("_um"):
