@@ -204,8 +204,6 @@ def project_mask(
     leak = np.float32(1.0 / mask.contrast_ratio)
     scale = p * mask.efficiency * tau / grid.sample_area_mm2
     if illumination is None:
-        if n_inside <= 0:
-            raise ConfigError("illumination", "zero on the field", "a non-zero illumination")
         irr = np.empty(t.shape, dtype=np.float32)
         col = in_x * np.float32(scale / n_inside)
         _shown_on_field(np.ascontiguousarray(t, dtype=np.float32), leak, in_y, col, irr)

@@ -144,6 +144,8 @@ def test_several_maps_rule_two_is_bounded_tightly():
     # 4 mJ in 4 s at one place (1.19x the truth); no place sees more than its own
     # map's pulses. Expected: the worst window of the A place alone, by hand.
     # Source: Directive 2006/25/EC, Annex II, Table 2.6, rule 2 (any group of pulses).
+    # The limits are corneal_mpe's, pinned against the Directive's tables in
+    # tests/test_exposure_limits.py; what is checked here is the windows' energy.
     lam, alpha = 880.0, 5.0
     starts = np.array([0.0, 2.0, 4.0, 6.0])
     durs = np.full(4, 2.0)

@@ -58,6 +58,7 @@ class MapSweep:
     def _map_maxima(self, irr: np.ndarray, key, diameters, integ) -> list[tuple[int, int, float]]:
         g = self.grid
         tags = [(key, g.shape, g.pitch_x_um, g.pitch_y_um, d) for d in diameters]
+        tag_of = dict(zip(diameters, tags, strict=True))
         cache = self.cache if (key is not None and self.cache is not None) else {}
         todo = [d for d, t in zip(diameters, tags, strict=True) if t not in cache]
         # maxima shared through the cache still count when their bound stayed loose
@@ -101,8 +102,8 @@ class MapSweep:
                     r, c, value = res.row, res.col, max(res.found_mw, res.bound_mw)
                     if not res.tight:
                         self.loose += 1
-                        cache[("loose", (key, g.shape, g.pitch_x_um, g.pitch_y_um, d))] = True
-                cache[(key, g.shape, g.pitch_x_um, g.pitch_y_um, d)] = (r, c, value)
+                        cache[("loose", tag_of[d])] = True
+                cache[tag_of[d]] = (r, c, value)
                 if self.progress is not None:
                     self.progress()
         return [cache[t] for t in tags]

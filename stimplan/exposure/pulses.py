@@ -512,10 +512,10 @@ def timeline_rules(
             int(mn[i : j + 1].sum()),
             1.0,
         )
-    # Rule 1: each pulse, alone and merged with those it touches.
-    for touching in (False, True):
-        gs, _ge, gq, gd, gn = _groups(s, d, q, 0.0, touching)
-        gz = None if labels is None else _share_sums(labels, q, gn)
+    # Rule 1: each pulse, alone (the groups of rule 2) and merged with those it touches.
+    ts, _te, tq, td, tn = _groups(s, d, q, 0.0, touching=True)
+    tz = None if labels is None else _share_sums(labels, q, tn)
+    for gs, gq, gd, gz in ((ms, mq, md, zc), (ts, tq, td, tz)):
         idx = np.arange(len(gq))
         gqc = np.minimum(gq, _share_cap(cap, gz, idx, idx))
         lim1 = limit(gd)
