@@ -23,12 +23,12 @@ phase_levels = 256
 
 [optics.laser]
 wavelength_nm = 880
-power_mw = 2.0
+power_mw = {power_mw}
 profile = "gaussian"
 waist_mm = {waist}
 
 [optics.relay]
-magnification = 0.2
+magnification = {magnification}
 
 [eye]
 preset = "rat"
@@ -51,6 +51,8 @@ def header(
     iterations: int = 40,
     aware: bool | None = False,
     initial: str | None = "lens",
+    power_mw: float = 2.0,
+    magnification: float = 0.2,
 ) -> str:
     """The sections up to ``[hologram]`` for an ``n x n`` SLM of 8 µm pixels.
 
@@ -58,7 +60,15 @@ def header(
     ``aware`` and ``initial`` are left out of the file when None.
     """
     waist = n * 8e-3 / 3.5 if waist_mm is None else waist_mm
-    text = HEADER.format(n=n, title=title, seed=seed, waist=waist, iterations=iterations)
+    text = HEADER.format(
+        n=n,
+        title=title,
+        seed=seed,
+        waist=waist,
+        iterations=iterations,
+        power_mw=power_mw,
+        magnification=magnification,
+    )
     if initial is not None:
         text += f'initial = "{initial}"\n'
     if aware is not None:

@@ -41,39 +41,24 @@ from stimplan.sequence import (
 )
 from stimplan.stimuli import Checkerboard, Flash, Grating, ImageStimulus, Inverted
 
+from .scenarios import header
+
 DOC = Path(__file__).resolve().parents[1] / "docs" / "sequence-format.md"
 
 # A small valid session (demo values).
-BASE = """\
-format = "stimplan-sequence/1"
-title = "test session (demo values)"
-seed = 3
-
-[optics.slm]
-pixels_x = 256
-pixels_y = 256
-pitch_um = 8.0
-phase_levels = 256
-
-[optics.laser]
-wavelength_nm = 880.0
-power_mw = 12.0
-profile = "gaussian"
-waist_mm = 0.5
-
-[optics.relay]
-magnification = 0.25
-
-[eye]
-preset = "rat"
-
-[implant]
-preset = "rat_55um"
-
-[hologram]
-method = "mraf"
-iterations = 20
-oversample = 2
+BASE = (
+    header(
+        256,
+        title="test session (demo values)",
+        seed=3,
+        waist_mm=0.5,
+        iterations=20,
+        aware=None,
+        initial=None,
+        power_mw=12.0,
+        magnification=0.25,
+    )
+    + """oversample = 2
 offset_um = [0.0, 0.0]
 on_threshold = 0.5
 
@@ -122,6 +107,7 @@ duration_ms = 500
 pulse_ms = 5
 rate_hz = 10
 """
+)
 
 MINIMAL = """\
 format = "stimplan-sequence/1"
@@ -249,7 +235,8 @@ def test_resolved_config_round_trips_through_to_dict():
     assert again == spec
     assert again.to_dict() == d
     # defaults are filled in, presets replaced by their values
-    assert d["optics"]["slm"]["fill_factor"] == 0.95
+    assert "zero_order_fraction" not in BASE
+    assert d["optics"]["slm"]["zero_order_fraction"] == 0.0  # docs/sequence-format.md default
     assert d["implant"]["pitch_um"] == 55.0 and "preset" not in d["implant"]
     assert d["hologram"]["iterations"] == 20 and d["hologram"]["implant_aware"] is True
     assert "checks:reversed" not in d["stimuli"]
@@ -299,11 +286,11 @@ def test_inverted_partner_works_for_any_stimulus():
 # (old text, new text, key path the message must name, line check)
 # line check: "new" = the line of the new text; "any" = some line; None = not checked.
 BAD_CASES = [
-    ("wavelength_nm = 880.0", "wavelength_nm = -5", "optics.laser.wavelength_nm", "new"),
+    ("wavelength_nm = 880", "wavelength_nm = -5", "optics.laser.wavelength_nm", "new"),
     ("pitch_um = 8.0", "pitch_um = 0", "optics.slm.pitch_um", "new"),
     ("pixels_x = 256", "pixels_x = 1.5", "optics.slm.pixels_x", "new"),
     ("phase_levels = 256", "phase_levels = 256\nbit_depth = 8", "optics.slm.bit_depth", "any"),
-    ("pitch_um = 8.0", "pitch_um = 8.0\nfill_factor = 1.5", "optics.slm.fill_factor", "any"),
+    ("fill_factor = 0.93", "fill_factor = 1.5", "optics.slm.fill_factor", "new"),
     ("pitch_um = 8.0", "pitch_um = 8.0\npitchum = 8", "optics.slm.pitchum", "any"),
     ('profile = "gaussian"', 'profile = "file"', "optics.laser.amplitude_file", "any"),
     ('profile = "gaussian"', 'profile = "tophat"', "optics.laser.profile", "new"),
@@ -425,11 +412,12 @@ def test_each_error_names_its_key_path(old, new, path, line):
 
 
 def test_wavelength_message_names_the_field_the_value_and_the_range():
-    err = _errors(_mutate(BASE, "wavelength_nm = 880.0", "wavelength_nm = -5"))
+    err = _errors(_mutate(BASE, "wavelength_nm = 880", "wavelength_nm = -5"))
     (e,) = err.errors
     assert e.field == "optics.laser.wavelength_nm" and e.value == -5
     assert "[400, 1400]" in e.allowed
-    assert "optics.laser.wavelength_nm (line 12) = -5: allowed in [400, 1400]" in str(err)
+    line = _line_of(BASE, "wavelength_nm = 880")
+    assert f"optics.laser.wavelength_nm (line {line}) = -5: allowed in [400, 1400]" in str(err)
 
 
 @pytest.mark.parametrize(("nm", "why"), [(650, "visible-light"), (1310, "cornea and lens")])
@@ -437,9 +425,10 @@ def test_a_wavelength_without_implemented_limits_is_refused_at_its_key(nm, why):
     # Source: Directive 2006/25/EC, Annex II, Table 2.2 (visible rows below 700 nm);
     # Schulmeister and Stuck (2024), abstract: corneal and lens limits bind at
     # 1200-1400 nm. Neither is implemented, so the file is refused at the key.
-    err = _errors(_mutate(BASE, "wavelength_nm = 880.0", f"wavelength_nm = {nm}"))
+    err = _errors(_mutate(BASE, "wavelength_nm = 880", f"wavelength_nm = {nm}"))
     (e,) = err.errors
-    assert e.field == "optics.laser.wavelength_nm" and e.line == 12
+    assert e.field == "optics.laser.wavelength_nm"
+    assert e.line == _line_of(BASE, "wavelength_nm = 880")
     assert "[700, 1200] nm" in e.allowed and why in e.detail
 
 
@@ -518,7 +507,8 @@ def test_several_errors_are_reported_at_once_one_per_line():
 
 
 def test_all_field_errors_of_one_table_are_reported():
-    text = _mutate(BASE, "pitch_um = 8.0", "pitch_um = -8.0\nfill_factor = 7")
+    text = _mutate(BASE, "pitch_um = 8.0", "pitch_um = -8.0")
+    text = _mutate(text, "fill_factor = 0.93", "fill_factor = 7")
     text = _mutate(text, "pixels_x = 256", "pixels_x = 1")
     fields = {e.field for e in _errors(text).errors}
     assert {"optics.slm.pitch_um", "optics.slm.fill_factor", "optics.slm.pixels_x"} <= fields

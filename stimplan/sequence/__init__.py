@@ -8,8 +8,10 @@ physical units; :func:`expand_timeline` turns that into frames
 (:class:`FrameSpec`) in time order, each with its train of light pulses.
 The keys are described in ``docs/sequence-format.md``.
 
-One idea per module, in the order of the flow: ``keys`` (the key tables),
-``lines`` (where a key is written), ``report`` (every error at once),
+One idea per module, in the order of the flow: ``keys`` (format and size
+caps), ``schema`` (every key of the file and the type of its value, a
+pydantic model per table), ``lines`` (where a key is written), ``report``
+(every error at once, each with its line),
 ``model`` (the validated steps and file), ``sections`` (building each
 section), ``timeline`` (frames and pulses), ``load`` (text to a model).
 

@@ -15,14 +15,10 @@ from ..errors import ConfigError
 from ..exposure import check_wavelength
 from ..optics.system import Eye, Illumination, OpticalSystem
 from .keys import (
-    FORMAT,
-    LIMITS_KEYS,
-    MASK_KEYS,
     MAX_DOTS_PER_LINE,
     MAX_FILE_BYTES,
     MAX_NESTING,
     SEED_MAX,
-    TOP_KEYS,
 )
 from .lines import LineIndex, dotted_line, nested_line, syntax_error
 from .model import SequenceSpec
@@ -241,15 +237,10 @@ def _too_deep(raw: Mapping[str, Any]) -> str | None:
 def _assemble(
     report: ErrorReport, raw: dict[str, Any], base_dir: Path | None, source: str | None
 ) -> SequenceSpec | None:
-    report.unknown_keys(raw, "", TOP_KEYS)
-    fmt = raw.get("format")
-    if fmt != FORMAT:
-        report.add("format", fmt, repr(FORMAT), "missing" if fmt is None else "unknown format")
+    report.check_schema(raw)
     title = raw.get("title", "")
-    if not isinstance(title, str):
-        report.add("title", title, "a string")
     seed = 0
-    if "seed" in raw:
+    if "seed" in raw and "seed" not in report.refused:
         try:
             seed = validate.integer("seed", raw["seed"], lo=0, hi=SEED_MAX)
         except ConfigError as exc:
@@ -281,10 +272,10 @@ def _assemble(
         )
     implant, has_implant = read_implant(report, raw)
     holo = read_hologram(report, raw, seed, has_implant)
-    mask = read_section(report, raw, "mask", MASK_KEYS, make_mask, "mask", keep=("kind",))
+    mask = read_section(report, raw, "mask", make_mask, "mask", keep=("kind",))
     protocol = None
     if "limits" in raw:
-        protocol = read_section(report, raw, "limits", LIMITS_KEYS, make_limits, "protocol")
+        protocol = read_section(report, raw, "limits", make_limits, "protocol")
     shuffle, repeats = read_order(report, raw)
     # With a broken [eye] or [implant] (already reported), stand-ins let the
     # stimuli's own values be checked; the specification is not built anyway.

@@ -13,8 +13,16 @@ from .keys import (
     NAME_RE,
 )
 from .lines import LineIndex
+from .schema import schema_errors
 
-__all__ = ["SequenceError", "ErrorReport", "key_text", "rebase_path", "build_collecting"]
+__all__ = [
+    "SequenceError",
+    "ErrorReport",
+    "key_text",
+    "path_text",
+    "rebase_path",
+    "build_collecting",
+]
 
 
 class SequenceError(ConfigError):
@@ -64,6 +72,7 @@ class ErrorReport:
     def __init__(self, index: LineIndex | None) -> None:
         self.index = index
         self.errors: list[ConfigError] = []
+        self.refused: set[str] = set()
 
     def line(self, path: str) -> int | None:
         return self.index.find(path) if self.index is not None else None
@@ -78,26 +87,52 @@ class ErrorReport:
     def add_unexpected(self, path: str, exc: BaseException) -> None:
         self.add(path, None, "", f"cannot be used ({type(exc).__name__}: {exc})")
 
-    def unknown_keys(self, table: Mapping[str, Any], path: str, allowed: Sequence[str]) -> None:
-        for key in table:
-            if key not in allowed:
-                name = key_text(key)
-                self.add(
-                    f"{path}.{name}" if path else name,
-                    table[key],
-                    "a key among " + ", ".join(allowed),
-                    "unknown key",
-                )
+    def check_schema(self, raw: Mapping[str, Any]) -> None:
+        """Record every problem the schema finds (:func:`.schema.schema_errors`).
+
+        The key paths of refused values are kept, so that building the
+        sections leaves those values out and reports each problem once.
+        """
+        for issue in schema_errors(raw):
+            path = path_text(issue.parts)
+            self.add(path, issue.value, issue.allowed, issue.detail)
+            self.refused.add(path)
+
+    def has_refused(self, path: str) -> bool:
+        """Whether the schema refused ``path`` or anything inside it."""
+        return any(r == path or r.startswith((path + ".", path + "[")) for r in self.refused)
+
+    def usable(self, table: Mapping[str, Any], path: str) -> dict[str, Any]:
+        """The entries of a table that the schema did not refuse."""
+        return {
+            k: v
+            for k, v in table.items()
+            if isinstance(k, str) and not self.has_refused(f"{path}.{key_text(k)}")
+        }
 
     def table(self, parent: Mapping[str, Any], key: str, path: str) -> dict[str, Any] | None:
-        """``parent[key]`` as a table: ``{}`` when absent, ``None`` (error) when not a table."""
+        """``parent[key]`` as a table: ``{}`` when absent, ``None`` when refused."""
         if key not in parent:
             return {}
         val = parent[key]
+        if path in self.refused:
+            return None
         if not isinstance(val, dict):
             self.add(path, val, "a table")
             return None
         return val
+
+
+def path_text(parts: Sequence[Any]) -> str:
+    """A key path from its parts: ``("steps", 2, "pulse_ms")`` -> ``steps[2].pulse_ms``."""
+    out = ""
+    for p in parts:
+        if isinstance(p, int) and not isinstance(p, bool):
+            out += f"[{p}]"
+        else:
+            name = key_text(p)
+            out = f"{out}.{name}" if out else name
+    return out
 
 
 def key_text(key: Any) -> str:
@@ -122,6 +157,7 @@ def build_collecting(
     *,
     retry: bool = True,
     keep: Sequence[str] = (),
+    dropped: bool = False,
 ) -> Any:
     """``make(**kwargs)``, recording every error.
 
@@ -129,11 +165,12 @@ def build_collecting(
     default) and the construction repeated, so that the errors of the other
     keys are found too; keys in ``keep`` (selectors such as ``preset``) stop
     the retries, and so does an error that names no given key once a key has
-    been dropped (it would most likely follow from the drop). Returns
-    ``None`` when anything was wrong.
+    been dropped (it would most likely follow from the drop). ``dropped``
+    says that the schema has already left keys out. Returns ``None`` when
+    anything was wrong.
     """
     kw = dict(kwargs)
-    failed = False
+    failed = dropped
     for _ in range(len(kw) + 1):
         try:
             obj = make(**kw)

@@ -22,25 +22,11 @@ from ..optics.eye import EYE_PRESETS, eye_preset
 from ..optics.system import SLM, Eye, Illumination, Relay
 from ..stimuli.base import STIMULUS_KINDS, Stimulus
 from ..stimuli.registry import stimulus_from_dict
-from .keys import (
-    EYE_KEYS,
-    HOLOGRAM_KEYS,
-    IFTA_KEYS,
-    IMPLANT_KEYS,
-    LASER_KEYS,
-    MAX_FRAMES,
-    NAME_RE,
-    OPTICS_KEYS,
-    ORDER_KEYS,
-    PARTNER_SUFFIXES,
-    RELAY_KEYS,
-    SLM_KEYS,
-    STEP_KEYS,
-    STEP_REQUIRED,
-)
+from .keys import MAX_FRAMES, NAME_RE, PARTNER_SUFFIXES
 from .lines import key_parts
 from .model import StepSpec, check_step_values, pair_um
 from .report import ErrorReport, build_collecting, rebase_path
+from .schema import IFTA_KEYS
 
 __all__ = [
     "make_mask",
@@ -139,45 +125,49 @@ def read_optics(
     optics = report.table(raw, "optics", "optics")
     if optics is None:
         return None, None, None
-    report.unknown_keys(optics, "optics", OPTICS_KEYS)
     out = []
-    for key, cls_keys, make, old in (
-        ("slm", SLM_KEYS, _make_slm, "slm"),
-        ("laser", LASER_KEYS, Illumination, "illumination"),
-        ("relay", RELAY_KEYS, Relay, "relay"),
+    for key, make, old in (
+        ("slm", _make_slm, "slm"),
+        ("laser", Illumination, "illumination"),
+        ("relay", Relay, "relay"),
     ):
         path = f"optics.{key}"
         tbl = report.table(optics, key, path)
         if tbl is None:
             out.append(None)
             continue
-        report.unknown_keys(tbl, path, cls_keys)
-        kw = {k: val for k, val in tbl.items() if k in cls_keys}
+        kw = report.usable(tbl, path)
         for fkey in ("lut_file", "amplitude_file", "correction_phase_file"):
             if fkey in kw:
                 kw[fkey] = _resolve_path(kw[fkey], base_dir)
         out.append(
-            build_collecting(report, make, kw, path, lambda f, o=old, p=path: rebase_path(f, o, p))
+            build_collecting(
+                report,
+                make,
+                kw,
+                path,
+                lambda f, o=old, p=path: rebase_path(f, o, p),
+                dropped=len(kw) < len(tbl),
+            )
         )
     return tuple(out)
 
 
 def read_eye(report: ErrorReport, raw: Mapping[str, Any]) -> Eye | None:
-    if "eye" not in raw:
-        report.add(
-            "eye",
-            None,
-            "a table with preset = " + " | ".join(map(repr, EYE_PRESETS)) + " or um_per_deg",
-            "missing",
-        )
+    if "eye" not in raw:  # reported by the schema
         return None
     tbl = report.table(raw, "eye", "eye")
     if tbl is None:
         return None
-    report.unknown_keys(tbl, "eye", EYE_KEYS)
-    kw = {k: val for k, val in tbl.items() if k in EYE_KEYS}
+    kw = report.usable(tbl, "eye")
     return build_collecting(
-        report, _make_eye, kw, "eye", lambda f: rebase_path(f, "eye", "eye"), keep=("preset",)
+        report,
+        _make_eye,
+        kw,
+        "eye",
+        lambda f: rebase_path(f, "eye", "eye"),
+        keep=("preset",),
+        dropped=len(kw) < len(tbl),
     )
 
 
@@ -188,8 +178,7 @@ def read_implant(report: ErrorReport, raw: Mapping[str, Any]) -> tuple[Implant |
     tbl = report.table(raw, "implant", "implant")
     if tbl is None:
         return None, True
-    report.unknown_keys(tbl, "implant", IMPLANT_KEYS)
-    kw = {k: val for k, val in tbl.items() if k in IMPLANT_KEYS}
+    kw = report.usable(tbl, "implant")
     imp = build_collecting(
         report,
         _make_implant,
@@ -197,6 +186,7 @@ def read_implant(report: ErrorReport, raw: Mapping[str, Any]) -> tuple[Implant |
         "implant",
         lambda f: rebase_path(f, "implant", "implant"),
         retry=False,
+        dropped=len(kw) < len(tbl),
     )
     return imp, True
 
@@ -211,10 +201,10 @@ def read_hologram(
         "offset_um": (0.0, 0.0),
         "on_threshold": 0.5,
     }
-    tbl = report.table(raw, "hologram", "hologram")
-    if tbl is None:
+    given = report.table(raw, "hologram", "hologram")
+    if given is None:
         return out
-    report.unknown_keys(tbl, "hologram", HOLOGRAM_KEYS)
+    tbl = report.usable(given, "hologram")
 
     def check(key: str, fn: Callable[[str, Any], Any]) -> None:
         if key in tbl:
@@ -240,7 +230,12 @@ def read_hologram(
         return IftaSettings(seed=seed, group_weighting=aware, **kw)
 
     out["ifta"] = build_collecting(
-        report, make, kw, "hologram", lambda f: rebase_path(f, "hologram", "hologram")
+        report,
+        make,
+        kw,
+        "hologram",
+        lambda f: rebase_path(f, "hologram", "hologram"),
+        dropped=len(tbl) < len(given),
     )
     return out
 
@@ -249,7 +244,6 @@ def read_section(
     report: ErrorReport,
     raw: Mapping[str, Any],
     key: str,
-    keys: Sequence[str],
     make: Callable[..., Any],
     old: str,
     *,
@@ -259,9 +253,16 @@ def read_section(
     tbl = report.table(raw, key, key)
     if tbl is None:
         return None
-    report.unknown_keys(tbl, key, keys)
-    kw = {k: val for k, val in tbl.items() if k in keys}
-    return build_collecting(report, make, kw, key, lambda f: rebase_path(f, old, key), keep=keep)
+    kw = report.usable(tbl, key)
+    return build_collecting(
+        report,
+        make,
+        kw,
+        key,
+        lambda f: rebase_path(f, old, key),
+        keep=keep,
+        dropped=len(kw) < len(tbl),
+    )
 
 
 def read_order(report: ErrorReport, raw: Mapping[str, Any]) -> tuple[bool, int]:
@@ -269,7 +270,7 @@ def read_order(report: ErrorReport, raw: Mapping[str, Any]) -> tuple[bool, int]:
     tbl = report.table(raw, "order", "order")
     if not tbl:
         return shuffle, repeats
-    report.unknown_keys(tbl, "order", ORDER_KEYS)
+    tbl = report.usable(tbl, "order")
     try:
         if "shuffle" in tbl:
             shuffle = validate.boolean("order.shuffle", tbl["shuffle"])
@@ -330,9 +331,7 @@ def read_stimuli(
 ) -> dict[str, Stimulus]:
     out: dict[str, Stimulus] = {}
     tbl = report.table(raw, "stimuli", "stimuli")
-    if not tbl:
-        if tbl is not None and "stimuli" not in raw:
-            report.add("stimuli", None, "a [stimuli.<name>] table for each stimulus", "missing")
+    if not tbl:  # absent or not a table: reported by the schema
         return out
     kinds = ", ".join(STIMULUS_KINDS)
     for name, body in tbl.items():
@@ -340,9 +339,8 @@ def read_stimuli(
         if not isinstance(name, str) or not NAME_RE.fullmatch(name):
             report.add(path, name, "a name of letters, digits, '_' and '-'", "':' names partners")
             continue
-        if not isinstance(body, dict):
-            report.add(path, body, "a table with kind = <one of the stimulus kinds>")
-            continue
+        if not isinstance(body, dict) or report.has_refused(f"{path}.kind"):
+            continue  # reported by the schema
         kind = body.get("kind")
         if not isinstance(kind, str) or kind not in STIMULUS_KINDS:
             report.add(f"{path}.kind", kind, "one of " + kinds, "missing" if kind is None else "")
@@ -407,24 +405,16 @@ def read_steps(
     default_power_mw: float,
 ) -> list[StepSpec]:
     items = raw.get("steps")
-    if items is None:
-        report.add("steps", None, "one [[steps]] table or more", "missing")
-        return []
-    if not isinstance(items, list) or not items:
-        report.add("steps", items, "one [[steps]] table or more (an array of tables)")
-        return []
+    if "steps" in report.refused or not isinstance(items, list):
+        return []  # reported by the schema
     out: list[StepSpec] = []
-    for i, item in enumerate(items):
+    for i, given in enumerate(items):
         prefix = f"steps[{i}]"
         n_before = len(report.errors)
-        if not isinstance(item, dict):
-            report.add(prefix, item, "a [[steps]] table")
-            continue
-        report.unknown_keys(item, prefix, STEP_KEYS)
-        names = _step_stimuli(report, item, prefix, stimuli, failed)
-        for key in STEP_REQUIRED:
-            if item.get(key) is None:  # absent, or None from a dict
-                report.add(f"{prefix}.{key}", None, "a number > 0", "missing")
+        if not isinstance(given, dict) or prefix in report.refused:
+            continue  # reported by the schema
+        item = report.usable(given, prefix)
+        names = _step_stimuli(report, given, item, prefix, stimuli, failed)
         if "alternate" in item and "alternate_ms" not in item:
             report.add(f"{prefix}.alternate_ms", None, "> 0 (ms) with alternate", "missing")
         if "alternate_ms" in item and "alternate" not in item:
@@ -454,7 +444,7 @@ def read_steps(
         vals = check_step_values(prefix, item, errs)
         for e in errs:
             report.add_exc(e, e.field)
-        if len(report.errors) > n_before or names is None:
+        if len(report.errors) > n_before or names is None or report.has_refused(prefix):
             continue
         if not has_power and not has_irr:
             vals["power_mw"] = default_power_mw
@@ -469,20 +459,26 @@ def read_steps(
 
 def _step_stimuli(
     report: ErrorReport,
+    given: Mapping[str, Any],
     item: Mapping[str, Any],
     prefix: str,
     stimuli: dict[str, Stimulus],
     failed: set[str],
 ) -> tuple[str, ...] | None:
-    """The stimulus names of a step, each checked (partners resolved into ``stimuli``)."""
-    if ("stimulus" in item) == ("alternate" in item):
+    """The stimulus names of a step, each checked (partners resolved into ``stimuli``).
+
+    ``given`` is the step as written, ``item`` what the schema left of it.
+    """
+    if ("stimulus" in given) == ("alternate" in given):
         report.add(
             f"{prefix}.stimulus",
-            item.get("stimulus"),
+            given.get("stimulus"),
             'exactly one of stimulus = "<name>" and alternate = ["<a>", "<b>"]',
-            "both given" if "stimulus" in item else "missing",
+            "both given" if "stimulus" in given else "missing",
         )
         return None
+    if ("stimulus" in item) != ("stimulus" in given):
+        return None  # refused by the schema
     if "stimulus" in item:
         refs = [(f"{prefix}.stimulus", item["stimulus"])]
     else:
