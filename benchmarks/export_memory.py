@@ -20,22 +20,13 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1]))  # the shared scena
 from stimplan.plan import plan_sequence
 from stimplan.present.export import export_plan
 from stimplan.sequence import parse_sequence
-from tests.scenarios import header
+from tests.scenarios import drifting_steps, header
 
 
 def sequence_text(n: int, phases: int, cycles: int) -> str:
     parts = [header(n, title=f"drifting grating, {phases * cycles} frames", iterations=30)]
     parts.append(f"\n[order]\nrepeats = {cycles}\n")
-    for k in range(phases):
-        parts.append(
-            f'\n[stimuli.drift_{k:03d}]\nkind = "grating"\nperiod_um = 220.0\n'
-            f"phase_deg = {360.0 * k / phases:.6f}\n"
-        )
-    for k in range(phases):
-        parts.append(
-            f'\n[[steps]]\nstimulus = "drift_{k:03d}"\nduration_ms = 50\npulse_ms = 5\n'
-            "rate_hz = 20\npower_mw = 1.0\n"
-        )
+    parts.append(drifting_steps(phases, duration_ms=50, pulse_ms=5))
     return "".join(parts)
 
 

@@ -9,7 +9,7 @@ from __future__ import annotations
 import sys
 from pathlib import Path
 
-from ._atomic import atomic_folder
+from .atomic import atomic_folder
 from .plan import plan_sequence
 from .present.export import export_plan
 from .present.report import write_report

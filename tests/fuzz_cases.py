@@ -39,7 +39,7 @@ from hypothesis import strategies as st
 from stimplan.errors import StimplanError
 from stimplan.sequence import SequenceSpec, load_sequence, parse_sequence, sequence_from_dict
 
-from .scenarios import gui_sequence, small_sequence
+from .scenarios import gui_sequence, reversal_step, small_sequence
 
 __all__ = [
     "BASE_TEXTS",
@@ -75,7 +75,8 @@ source = "demo values"
 # Our own document that reaches the sections and stimulus kinds the scenarios leave
 # out: a custom eye and implant, a bit depth, a Fresnel lens, mask, limits, order,
 # compositions, partners and an alternating step (demo values).
-_CUSTOM = """\
+_CUSTOM = (
+    """\
 format = "stimplan-sequence/1"
 title = "fuzz base: custom eye and implant"
 seed = 11
@@ -180,15 +181,13 @@ region = "active"
 [stimuli.dark]
 kind = "blank"
 
-[[steps]]
-alternate = ["checks", "checks:reversed"]
-alternate_ms = 500
-duration_ms = 2000
-pulse_ms = 10
-rate_hz = 20
-irradiance_mw_per_mm2 = 0.5
-irradiance_basis = "min"
-
+"""
+    + reversal_step(
+        alternate_ms=500,
+        duration_ms=2000,
+        light='irradiance_mw_per_mm2 = 0.5\nirradiance_basis = "min"',
+    )
+    + """
 [[steps]]
 stimulus = "c"
 duration_ms = 300
@@ -228,6 +227,7 @@ duration_ms = 100
 pulse_ms = 1
 rate_hz = 100
 """
+)
 
 
 def _doc_example() -> str:

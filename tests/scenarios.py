@@ -7,7 +7,14 @@ this module too.
 
 from __future__ import annotations
 
-__all__ = ["header", "small_sequence", "gui_sequence", "drifting_grating"]
+__all__ = [
+    "header",
+    "small_sequence",
+    "gui_sequence",
+    "reversal_step",
+    "drifting_steps",
+    "drifting_grating",
+]
 
 HEADER = """
 format = "stimplan-sequence/1"
@@ -145,9 +152,28 @@ blank_after_ms = 50
     )
 
 
-def drifting_grating(n: int, frames: int, *, period_um: float = 220.0) -> str:
-    """A square grating drifting through one period in ``frames`` steps (image domain)."""
-    parts = [header(n, title=f"drifting grating, {frames} frames")]
+def reversal_step(
+    *, alternate_ms: float = 250, duration_ms: float = 1000, light: str = "power_mw = 1.0"
+) -> str:
+    """A ``[[steps]]`` table: the checkerboard ``checks`` and its reversed partner in turn,
+    20 Hz pulses of 10 ms; ``light`` is the step's power or irradiance line(s)."""
+    return f"""
+[[steps]]
+alternate = ["checks", "checks:reversed"]
+alternate_ms = {alternate_ms}
+duration_ms = {duration_ms}
+pulse_ms = 10
+rate_hz = 20
+{light}
+"""
+
+
+def drifting_steps(
+    frames: int, *, period_um: float = 220.0, duration_ms: float = 100, pulse_ms: float = 10
+) -> str:
+    """The stimuli and steps of a square grating drifting through one period in ``frames``
+    steps (20 Hz pulses at 1 mW), without the header."""
+    parts = []
     for k in range(frames):
         parts.append(
             f"""
@@ -162,10 +188,17 @@ phase_deg = {360.0 * k / frames:.6f}
             f"""
 [[steps]]
 stimulus = "drift_{k:03d}"
-duration_ms = 100
-pulse_ms = 10
+duration_ms = {duration_ms}
+pulse_ms = {pulse_ms}
 rate_hz = 20
 power_mw = 1.0
 """
         )
     return "".join(parts)
+
+
+def drifting_grating(n: int, frames: int, *, period_um: float = 220.0) -> str:
+    """A square grating drifting through one period in ``frames`` steps (image domain)."""
+    return header(n, title=f"drifting grating, {frames} frames") + drifting_steps(
+        frames, period_um=period_um
+    )

@@ -24,7 +24,7 @@ STAGES = [
         "validate",
         "grid",
         "io_images",
-        "_atomic",
+        "atomic",
         "cautions",
         "batch",
         "reuse",
@@ -112,3 +112,90 @@ def test_the_plugin_uses_the_public_core_only():
                 private.append(f"{module}:{line} imports {target}")
             assert target != "stimplan.cli", f"{module}:{line} imports the CLI"
     assert not private, "private modules used by the plugin:\n" + "\n".join(private)
+
+
+def _module_graph():
+    """Every module of the package and the plugin, with the project's modules it imports."""
+    modules = dict()
+    for root, prefix in ((ROOT, "stimplan"), (PLUGIN, "stimplan_napari")):
+        for path, module, is_pkg in _modules(root, prefix):
+            modules[module] = (path, is_pkg)
+    graph = {}
+    for module, (path, is_pkg) in modules.items():
+        targets = set()
+        for _, target in _imports(path, module, is_pkg):
+            # ``from pkg import name`` is recorded as ``pkg.name``: a module if one is named so
+            while target and target not in modules:
+                target = target.rpartition(".")[0]
+            if target and target != module:
+                targets.add(target)
+        graph[module] = targets
+    return graph
+
+
+def test_no_import_circles_also_inside_functions():
+    # common practice: an import graph without cycles (Tarjan's strongly connected
+    # components; a component of more than one module is a circle)
+    graph = _module_graph()
+    index, low, stack, on, circles = {}, {}, [], set(), []
+
+    def visit(v):
+        index[v] = low[v] = len(index)
+        stack.append(v)
+        on.add(v)
+        for w in graph[v]:
+            if w not in index:
+                visit(w)
+                low[v] = min(low[v], low[w])
+            elif w in on:
+                low[v] = min(low[v], index[w])
+        if low[v] == index[v]:
+            comp = []
+            while True:
+                w = stack.pop()
+                on.discard(w)
+                comp.append(w)
+                if w == v:
+                    break
+            if len(comp) > 1:
+                circles.append(sorted(comp))
+
+    for v in graph:
+        if v not in index:
+            visit(v)
+    assert not circles, f"import circles: {circles}"
+
+
+def test_no_private_name_is_imported_from_another_module():
+    # common practice (PEP 8, "Public and internal interfaces"): a leading underscore
+    # is internal to its module; the plugin's own underscored modules are its internals
+    found = []
+    for root, prefix in ((ROOT, "stimplan"), (PLUGIN, "stimplan_napari")):
+        for path, module, _ in _modules(root, prefix):
+            for node in ast.walk(ast.parse(path.read_text())):
+                if not isinstance(node, ast.ImportFrom):
+                    continue
+                mod = node.module or ""
+                if node.level == 0 and not mod.startswith(("stimplan", "stimplan_napari")):
+                    continue
+                core = mod.startswith("stimplan.") or (prefix == "stimplan" and node.level)
+                if core and any(part.startswith("_") for part in mod.split(".")):
+                    found.append(f"{module}:{node.lineno} imports {mod}")
+                for alias in node.names:
+                    if alias.name.startswith("_") and not alias.name.startswith("__"):
+                        found.append(f"{module}:{node.lineno} imports {mod}.{alias.name}")
+    assert not found, "private names used across modules:\n" + "\n".join(found)
+
+
+def test_files_and_classes_stay_small():
+    # Source: the project's code rules (DEVELOPERS.md: one file, one idea, under 800
+    # lines; no class over 250 lines)
+    big = []
+    for path, module, _ in _modules(ROOT, "stimplan"):
+        lines = path.read_text().count("\n")
+        if lines > 800:
+            big.append(f"{module}: {lines} lines")
+        for node in ast.walk(ast.parse(path.read_text())):
+            if isinstance(node, ast.ClassDef) and node.end_lineno - node.lineno + 1 > 250:
+                big.append(f"{module}.{node.name}: {node.end_lineno - node.lineno + 1} lines")
+    assert not big, "\n".join(big)

@@ -14,7 +14,7 @@ from stimplan.reuse import (
 )
 from stimplan.sequence import parse_sequence
 
-from .scenarios import small_sequence
+from .scenarios import drifting_steps, reversal_step, small_sequence
 
 MOVED = """
 [stimuli.spot_moved]
@@ -54,18 +54,7 @@ def test_translated_stimulus_reuses_the_hologram_within_2_percent():
 
 
 def _drift(phases: int) -> str:
-    parts = []
-    for k in range(phases):
-        parts.append(
-            f'\n[stimuli.drift_{k:02d}]\nkind = "grating"\nperiod_um = 220\n'
-            f"phase_deg = {360.0 * k / phases:.6f}\n"
-        )
-    for k in range(phases):
-        parts.append(
-            f'\n[[steps]]\nstimulus = "drift_{k:02d}"\nduration_ms = 50\npulse_ms = 5\n'
-            "rate_hz = 20\npower_mw = 1.0\n"
-        )
-    return "".join(parts)
+    return drifting_steps(phases, duration_ms=50, pulse_ms=5)
 
 
 def test_a_grating_is_periodic_so_a_phase_step_has_a_short_translation():
@@ -111,19 +100,7 @@ def test_a_drifting_grating_is_served_by_few_computed_holograms():
 def test_reversed_checkerboard_starts_from_its_partner():
     # common practice: a warm start from a related solution (Fienup, Appl. Opt. 21, 2758
     # (1982), starting guesses); the reversed board is its partner moved by one check.
-    extra = """
-[stimuli.checks]
-kind = "checkerboard"
-check_um = 110
-
-[[steps]]
-alternate = ["checks", "checks:reversed"]
-alternate_ms = 250
-duration_ms = 1000
-pulse_ms = 10
-rate_hz = 20
-power_mw = 1.0
-"""
+    extra = '\n[stimuli.checks]\nkind = "checkerboard"\ncheck_um = 110\n' + reversal_step()
     spec = _spec(extra)
     system = spec.system
     jobs = plan_jobs(spec, [["checks"], ["checks:reversed"]], system)

@@ -41,7 +41,7 @@ from stimplan.sequence import (
 )
 from stimplan.stimuli import Checkerboard, Flash, Grating, ImageStimulus, Inverted
 
-from .scenarios import header
+from .scenarios import header, reversal_step
 
 DOC = Path(__file__).resolve().parents[1] / "docs" / "sequence-format.md"
 
@@ -91,16 +91,9 @@ rate_hz = 20
 power_mw = 4.0
 repeat = 1
 blank_after_ms = 0
-
-[[steps]]
-alternate = ["checks", "checks:reversed"]
-alternate_ms = 250
-duration_ms = 1000
-pulse_ms = 10
-rate_hz = 20
-irradiance_mw_per_mm2 = 1.0
-irradiance_basis = "mean"
-
+"""
+    + reversal_step(light='irradiance_mw_per_mm2 = 1.0\nirradiance_basis = "mean"')
+    + """
 [[steps]]
 stimulus = "flash"
 duration_ms = 500

@@ -14,7 +14,7 @@ from napari.utils.notifications import show_warning
 
 from stimplan.cautions import CAUTION_SHORT, CAUTIONS
 from stimplan.plan.evaluate import stimulus_exposures
-from stimplan.present.summary import stimulus_rows
+from stimplan.present.summary import plan_summary
 
 __all__ = [
     "StimulusFigures",
@@ -125,7 +125,8 @@ def readout_from_plan(plan, title: str | None = None) -> Readout:
     -------
     Readout
     """
-    # the one summary of a plan (the CLI's table and `check --json` use the same rows)
+    # the one summary of a plan: the CLI's table and `check --json` print the same figures
+    summary = plan_summary(plan)
     rows = [
         StimulusFigures(
             name=row["name"],
@@ -137,29 +138,31 @@ def readout_from_plan(plan, title: str | None = None) -> Readout:
             verdict=row["verdict"],
             warnings=tuple(row["warnings"]),
         )
-        for row in stimulus_rows(plan)
+        for row in summary["stimuli"]
     ]
-    e = plan.exposure
-    system = plan.spec.system
+    e, beam = summary["exposure"], summary["beam"]
+    protocol = e["protocol"]
     return Readout(
-        title=title or plan.spec.title,
+        title=title or summary["title"],
         stimuli=tuple(rows),
-        rule_ratios={} if e is None else {r: res.ratio for r, res in e.rules.items()},
-        worst_ratio=0.0 if e is None else float(e.worst_ratio),
-        binding_rule=None if e is None else e.binding_rule,
-        verdict_standard="within" if e is None else e.verdict_standard,
-        protocol=None if e is None or e.protocol is None else e.protocol.describe(),
-        protocol_ratio=None if e is None or e.protocol is None else e.protocol.worst_ratio,
-        verdict=plan.verdict,
-        beam_at_pupil_mm=system.beam_diameter_at_pupil_mm,
-        pupil_mm=system.eye.pupil_diameter_mm,
-        overfills_pupil=system.overfills_pupil,
-        binding=None if e is None else e.binding_text(),
+        rule_ratios={rule: float(ratio) for rule, ratio in e["rules"].items()},
+        worst_ratio=float(e["worst_ratio"]),
+        binding_rule=e["binding_rule"],
+        verdict_standard=e["verdict_standard"],
+        protocol=None if protocol is None else protocol["cap"],
+        protocol_ratio=None if protocol is None else float(protocol["worst_ratio"]),
+        verdict=e["verdict"],
+        beam_at_pupil_mm=beam["at_pupil_mm"],
+        pupil_mm=beam["pupil_mm"],
+        overfills_pupil=beam["overfills_pupil"],
+        binding=e["binding"],
     )
 
 
-def _g(x: float | None, spec: str = ".3g") -> str:
-    if x is None or (isinstance(x, float) and math.isnan(x)):
+def _g(x: float | str | None, spec: str = ".3g") -> str:
+    if isinstance(x, str):  # JSON-safe infinities ("inf") as the summary writes them
+        x = float(x)
+    if x is None or math.isnan(x):
         return "-"
     return format(x, spec)
 

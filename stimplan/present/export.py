@@ -35,7 +35,7 @@ from typing import Any
 import numpy as np
 
 from .. import __version__
-from .._atomic import atomic_folder
+from ..atomic import atomic_folder
 from ..cautions import CAUTIONS
 from ..errors import ConfigError, ExportError, ExposureLimitError, InputFileError, IntegrityError
 from ..holography.quantize import grey_map_for

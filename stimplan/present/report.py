@@ -18,7 +18,7 @@ from pathlib import Path
 import numpy as np
 
 from .. import __version__
-from .._atomic import atomic_file
+from ..atomic import atomic_file
 from ..cautions import CAUTIONS, EDITION
 from ..plan.evaluate import mask_exposure, max_laser_power_mw
 from .summary import stimulus_rows

@@ -62,6 +62,7 @@ def plan_summary(plan) -> dict:
     e = plan.exposure
     mask = mask_exposure(plan)
     mask_eq = mask_exposure(plan, equal_irradiance=True)
+    system = plan.spec.system
     out = {
         "title": plan.spec.title,
         "stimplan_version": __version__,
@@ -77,17 +78,28 @@ def plan_summary(plan) -> dict:
             "binding_limit": None if e is None else e.binding_limit,
             "binding": None if e is None else e.binding_text(),
             "binding_rule": None if e is None else e.binding_rule,
+            "verdict_standard": "within" if e is None else e.verdict_standard,
+            "rules": {} if e is None else {r: res.ratio for r, res in e.rules.items()},
             "margin": None if e is None else e.margin,
             "edition": None if e is None else e.edition,
             "protocol": None
             if e is None or e.protocol is None
-            else {"worst_ratio": e.protocol.worst_ratio, "verdict": e.protocol.verdict},
+            else {
+                "worst_ratio": e.protocol.worst_ratio,
+                "verdict": e.protocol.verdict,
+                "cap": e.protocol.describe(),
+            },
             "mask_worst_ratio": None if mask is None else mask.worst_ratio,
             "mask_equal_irradiance_worst_ratio": None if mask_eq is None else mask_eq.worst_ratio,
             "max_peak_frame_power_mw": {
                 "hologram": max_laser_power_mw(plan, "hologram"),
                 "mask": max_laser_power_mw(plan, "mask"),
             },
+        },
+        "beam": {
+            "at_pupil_mm": system.beam_diameter_at_pupil_mm,
+            "pupil_mm": system.eye.pupil_diameter_mm,
+            "overfills_pupil": system.overfills_pupil,
         },
         "cautions": CAUTIONS,
     }
