@@ -36,7 +36,7 @@ STAGES = [
     {"implant"},
     {"stimuli"},
     {"exposure"},
-    {"comparison", "legibility"},
+    {"comparison", "legibility", "gain"},
     {"sequence"},
     {"plan"},
     {"present"},

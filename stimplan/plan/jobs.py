@@ -8,6 +8,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from ..comparison import pixel_figures, project_mask_on_implant
+from ..gain import gain_factors
 from ..holography import Hologram, add_phase_ramp, design_hologram
 from ..holography.design import display_levels
 from ..holography.quantize import grey_map_for
@@ -104,7 +105,7 @@ def _evaluate(name, stim, index, spec, system, holo, workers, design=None) -> St
         REFERENCE_POWER_MW,
         system.eye.transmission,
     )
-    on = hfig = mfig = readout = None
+    on = hfig = mfig = readout = gain = None
     if spec.implant is not None:
         wl = system.illumination.wavelength_nm
         states = pixel_states(design, grid, spec.implant, threshold=spec.on_threshold)
@@ -114,6 +115,16 @@ def _evaluate(name, stim, index, spec, system, holo, workers, design=None) -> St
         if on.any():
             hfig = pixel_figures("hologram", readout, on)
             mfig = pixel_figures(f"{mask.kind.upper()} mask", mread, on)
+            if hfig.on_power_uw > 0 and mfig.on_power_uw > 0:
+                gain = gain_factors(
+                    hologram_on_power_uw=np.asarray(readout.power_uw)[on],
+                    mask_on_power_uw=np.asarray(mread.power_uw)[on],
+                    on_active_area_mm2=np.asarray(readout.active_area_mm2)[on],
+                    laser_power_mw=REFERENCE_POWER_MW,
+                    mask_efficiency=mask.efficiency,
+                    eye_transmission=system.eye.transmission,
+                    field_area_mm2=mp.field_area_mm2,
+                )
     return StimulusPlan(
         name=name,
         hologram_index=index,
@@ -126,6 +137,7 @@ def _evaluate(name, stim, index, spec, system, holo, workers, design=None) -> St
         hologram_figures=hfig,
         mask_figures=mfig,
         readout=readout,
+        gain=gain,
     )
 
 

@@ -13,6 +13,7 @@ from ..errors import ConfigError
 from ..exposure import (
     ExposureAssessment,
 )
+from ..gain import GainFactors
 from ..metrics import PatternMetrics
 from .spool import (
     Spooled,
@@ -44,6 +45,9 @@ class StimulusPlan:
         Per-pixel figures at 1 mW (None without an implant).
     readout : PixelReadout or None
         Hologram readout at 1 mW.
+    gain : GainFactors or None
+        The hologram's ON-pixel gain over the mask as efficiency × area ×
+        coverage (None without ON pixels).
     grid : RetinalGrid
         The prediction grid.
 
@@ -68,6 +72,7 @@ class StimulusPlan:
         hologram_figures: ProjectorFigures | None = None,
         mask_figures: ProjectorFigures | None = None,
         readout: object | None = None,
+        gain: GainFactors | None = None,
     ) -> None:
         self.name = name
         self.hologram_index = hologram_index
@@ -84,6 +89,7 @@ class StimulusPlan:
         self.hologram_figures = hologram_figures
         self.mask_figures = mask_figures
         self.readout = readout
+        self.gain = gain
 
     target = property(lambda self: spooled_value(self._parts["target"]), doc="The Target.")
     hologram = property(lambda self: spooled_value(self._parts["hologram"]), doc="The Hologram.")

@@ -324,6 +324,10 @@ def render_report(plan) -> str:
                 ("mean ON-pixel power, hologram", f"{h.on_power_uw * power:.4g} µW"),
                 (f"mean ON-pixel power, {k.label}", f"{k.on_power_uw * power:.4g} µW"),
                 ("ON-pixel CV, hologram", f"{h.on_cv:.3f}"),
+                (
+                    f"gain over the {k.label} (efficiency × area × coverage)",
+                    "-" if sp.gain is None else sp.gain.describe(),
+                ),
                 ("ON/OFF contrast, hologram", f"{h.on_off_contrast:.3g}"),
             ]
         row = legible[sp.hologram_index]

@@ -47,6 +47,9 @@ def stimulus_rows(plan) -> list[dict]:
                     "mask": None if m is None else m.on_power_uw * power,
                 },
                 "on_pixel_cv": None if h is None else h.on_cv,
+                # hologram over mask ON-pixel power = efficiency x area x coverage
+                "gain_factors": None if sp.gain is None else sp.gain.as_dict(),
+                "gain_over_mask": None if sp.gain is None else sp.gain.ratio,
                 "exposure_ratio": None if exp is None else exp.worst_ratio,
                 "verdict": None if exp is None else exp.verdict,
                 "finest_detail_um": None if leg is None else leg.detail_um,
@@ -167,6 +170,9 @@ def print_table(plan, file=None) -> None:
             f"{e['mask_equal_irradiance_worst_ratio']:.3g} of the limit",
             file=file,
         )
+    for sp in plan.holograms:
+        if sp.gain is not None:
+            print(f"gain over the mask, {sp.name}: {sp.gain.describe()}", file=file)
     for r in s["stimuli"]:
         for w in r["warnings"]:
             print(f"legibility: {w}", file=file)
