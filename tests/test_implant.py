@@ -296,16 +296,16 @@ def test_grating_acuity_of_implant():
 
 
 def test_presets():
-    # Source: Palanker et al., Ophthalmology (2020): 2 × 2 mm array of 100 µm hexagonal pixels
-    # (378 pixels in the clinical device; our geometry keeps every cell inside the square and
-    # is not forced to that number). The rat preset is a demo value.
+    # Source: Palanker et al., Ophthalmology (2020): a 2 × 2 mm array of 378 hexagonal
+    # pixels of 100 µm (shared/REFERENCES.md). The rat preset is a demo value.
     rat = implant_preset("rat_55um")
     assert rat.n_pixels == 397
     assert 1150.0 < rat.footprint_width_um < 1300.0
     human = implant_preset("human_100um")
     x0, x1, y0, y1 = human.footprint_extent_um
     assert x1 - x0 <= 2000.0 + 1e-6 and y1 - y0 <= 2000.0 + 1e-6
-    assert 300 < human.n_pixels < 480
+    assert human.n_pixels == 378
+    assert human.pitch_um == 100.0 and human.layout == "hex"
     with pytest.raises(ConfigError):
         implant_preset("cat")
     assert implant_preset("rat_55um", rings=2).n_pixels == 19

@@ -27,15 +27,17 @@ IMPLANT_PRESETS: dict[str, dict[str, Any]] = {
         trench_um=5.0,
         name="rat_55um",
     ),
-    # A 2 × 2 mm array of 100 µm hexagonal pixels (the clinical device of Palanker
-    # et al. 2020 has 378 pixels; here every cell that fits in the 2 mm square is
-    # kept, which gives more). Active fraction and trench are demo values.
+    # The clinical array of Palanker et al. (2020): 2 × 2 mm, 378 hexagonal pixels of
+    # 100 µm. Layout rule (ours; the source gives size, pitch and count only): a block
+    # of 21 lattice rows of 18 pixels (21 × 18 = 378), rows 86.6 µm apart and every
+    # other row shifted by half a pitch, which spans 1.85 × 1.85 mm and leaves a
+    # 75 µm edge on each side of the 2 mm chip. Active fraction and trench are demo values.
     "human_100um": dict(
         pitch_um=100.0,
         layout="hex",
-        outline="square",
-        width_um=2000.0,
-        pixel_inclusion="cell",
+        outline="rectangle",
+        rows=21,
+        cols=18,
         active_shape="hexagon",
         active_fraction=0.6,
         trench_um=5.0,
