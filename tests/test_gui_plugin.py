@@ -48,6 +48,21 @@ def _dock(viewer, name):
     return widget
 
 
+def _assert_view_frames(viewer, implant, *, most=3.0):
+    """The visible world rectangle holds the implant's footprint and is at most ``most``
+    times its size: the first view frames the implant, not the (far larger) SLM plane."""
+    assert viewer.canvas.overlays.scale_bar.visible
+    rows, cols = viewer.canvas.size
+    zoom = viewer.scene.camera.zoom
+    cy, cx = viewer.scene.camera.center[-2:]
+    x0, x1, y0, y1 = implant.footprint_extent_um
+    # common practice: napari's world is (-y, x); zoom is canvas pixels per world unit
+    half_h, half_w = rows / zoom / 2, cols / zoom / 2
+    assert cx - half_w <= x0 and x1 <= cx + half_w
+    assert cy - half_h <= -y1 and -y0 <= cy + half_h
+    assert min(2 * half_h / (y1 - y0), 2 * half_w / (x1 - x0)) <= most
+
+
 # -- stimulus and hologram panel -------------------------------------------------------------
 
 
@@ -67,6 +82,7 @@ def test_stimulus_panel_computes_layers_in_micrometres(make_napari_viewer, qtbot
     assert not panel.status.value.startswith("error"), panel.status.value
 
     res = panel.result
+    _assert_view_frames(viewer, res.implant)
     names = [layer.name for layer in viewer.layers]
     for key in ("target", "phase", "irradiance", "implant", "zero_order"):
         assert LAYER_NAMES[key] in names
@@ -163,6 +179,7 @@ def test_sequence_panel_steps_through_frames(make_napari_viewer, qtbot, tmp_path
     panel.plan_button.native.click()
     qtbot.waitUntil(lambda: panel.plan is not None and not panel.busy, timeout=60000)
     plan = panel.plan
+    _assert_view_frames(viewer, plan.spec.implant)
     layer = viewer.layers[LAYER_NAMES["sequence"]]
     n = len(plan.frames)
     # the viewer opens on the first lit frame
@@ -345,3 +362,22 @@ def test_an_optotype_can_be_sized_by_logmar(make_napari_viewer):
     res = compute_stimulus(panel.request())
     ring = res.plan.spec.stimuli["landolt"]
     assert ring.height_um == pytest.approx(5 * 10 / 60 * 288.0, rel=1e-6)
+
+
+@pytest.mark.parametrize("optics", ["rat grating-acuity demo", "human letter-acuity demo"])
+def test_the_panels_defaults_stay_within_the_demo_protocol(make_napari_viewer, optics):
+    # A first click on "compute" must not plan light above the standard or the
+    # scenario's own protocol cap (the demo [limits], our own numbers). common practice
+    from stimplan.plan.evaluate import max_laser_power_mw
+    from stimplan_napari._compute import compute_stimulus
+
+    viewer = make_napari_viewer()
+    panel = _dock(viewer, "Stimulus and hologram")
+    panel.optics.value = optics
+    panel.slm_pixels.value = 128  # coarser sampling of the same field, for speed
+    res = compute_stimulus(panel.request())
+    e = res.plan.exposure
+    assert res.plan.verdict == "within", e.binding_text()
+    if e.protocol is not None:
+        assert e.protocol.worst_ratio < 1.0
+    assert panel.laser_power_mw.value <= max_laser_power_mw(res.plan)

@@ -36,7 +36,7 @@ STAGES = [
     {"implant"},
     {"stimuli"},
     {"exposure"},
-    {"comparison", "legibility", "gain"},
+    {"comparison", "legibility", "gain", "budget"},
     {"sequence"},
     {"plan"},
     {"present"},

@@ -210,6 +210,21 @@ def test_report_is_self_contained_with_cautions(plan):
     assert "src='http" not in text and 'src="http' not in text
 
 
+def test_report_speaks_in_labels_with_units_and_defines_its_terms(plan):
+    # common practice: a reader sees labels and units, one notation, and defined terms
+    import re
+
+    text = render_report(plan)
+    visible = re.sub(r"data:image/[a-z]+;base64,[A-Za-z0-9+/=]+", "", text)
+    for raw in ("sample_pitch_x_um", "overfills_pupil", "wavelength_nm", "mW/mm^2", "alpha ="):
+        assert raw not in visible, raw
+    assert "beam overfills the pupil" in visible and "retinal sample pitch, x" in visible
+    for term in ("uniformity", "RMS error", "speckle contrast", "CV"):
+        assert f"<b>{term}</b>:" in visible
+    assert "light budget" in visible and "of the deliverable" in visible
+    assert "efficiency × area × coverage" in visible
+
+
 def test_mask_exposure_at_equal_irradiance_scales_with_its_power(tmp_path):
     # Source: linearity of retinal exposure in laser power: the mask shown at the power
     # that matches the hologram's ON-pixel irradiance has its same-power ratio times

@@ -229,8 +229,9 @@ def stimulus_layers(result) -> list[tuple]:
     Returns
     -------
     list of tuple
-        Bottom to top. The SLM phase lives in the SLM plane (SLM µm) and is
-        hidden at first; everything else is on the retina.
+        Bottom to top: target, irradiance, implant, zero order on the retina
+        (µm), then the SLM phase in the SLM plane (SLM µm), hidden at first and
+        last so that the first view frames the retina.
     """
     pred = result.prediction
     holo = result.hologram
@@ -239,18 +240,6 @@ def stimulus_layers(result) -> list[tuple]:
     top = float(irr.max()) if irr.size and irr.max() > 0 else 1.0
     meta = {RESULT_KEY: result}
     layers = [
-        (
-            holo.phase_rad,
-            {
-                "name": LAYER_NAMES["phase"],
-                "colormap": "twilight",
-                "contrast_limits": (0.0, TWO_PI),
-                "visible": False,
-                "metadata": meta,
-                **slm_placement(result.system.slm),
-            },
-            "image",
-        ),
         (
             target.intensity,
             {
@@ -281,6 +270,22 @@ def stimulus_layers(result) -> list[tuple]:
     pts = zero_order_points(pred.zero_order_um, result.system.field_width_um)
     pts[1]["metadata"] = meta
     layers.append(pts)
+    # the SLM plane last: napari frames its first view on the first layer it is given,
+    # so the view opens on the retina, not on the (hidden, far larger) SLM
+    layers.append(
+        (
+            holo.phase_rad,
+            {
+                "name": LAYER_NAMES["phase"],
+                "colormap": "twilight",
+                "contrast_limits": (0.0, TWO_PI),
+                "visible": False,
+                "metadata": meta,
+                **slm_placement(result.system.slm),
+            },
+            "image",
+        )
+    )
     return layers
 
 
@@ -332,20 +337,6 @@ def plan_layers(plan) -> list[tuple]:
     grey_top = float(max(int(p.max()) for p in grey_pages)) or float(levels - 1)
     layers = [
         (
-            frame_stack(grey_pages, grey_idx),
-            {
-                "name": LAYER_NAMES["sequence_grey"],
-                "colormap": "gray",
-                "contrast_limits": (0.0, grey_top),
-                "visible": False,
-                "scale": (1.0, *slm["scale"]),
-                "translate": (0.0, *slm["translate"]),
-                "units": ("dimensionless", "um", "um"),
-                "axis_labels": ("frame", "-y", "x"),
-            },
-            "image",
-        ),
-        (
             plan_frame_maps(plan),
             {
                 "name": LAYER_NAMES["sequence"],
@@ -363,6 +354,22 @@ def plan_layers(plan) -> list[tuple]:
     if plan.spec.implant is not None:
         layers.append(implant_shapes(plan.spec.implant))
     layers.append(zero_order_points(pred0.zero_order_um, system.field_width_um))
+    layers.append(  # the SLM plane last, hidden: the first view frames the retina
+        (
+            frame_stack(grey_pages, grey_idx),
+            {
+                "name": LAYER_NAMES["sequence_grey"],
+                "colormap": "gray",
+                "contrast_limits": (0.0, grey_top),
+                "visible": False,
+                "scale": (1.0, *slm["scale"]),
+                "translate": (0.0, *slm["translate"]),
+                "units": ("dimensionless", "um", "um"),
+                "axis_labels": ("frame", "-y", "x"),
+            },
+            "image",
+        )
+    )
     return layers
 
 

@@ -15,6 +15,7 @@ from collections.abc import Callable, Iterable
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
+import numpy as np
 from magicgui.widgets import (
     CheckBox,
     ComboBox,
@@ -51,7 +52,7 @@ from ._compute import (
     load_optics,
     stimulus_fields,
 )
-from ._layers import PLAN_KEY, RESULT_KEY, plan_layers, stimulus_layers
+from ._layers import LAYER_NAMES, PLAN_KEY, RESULT_KEY, plan_layers, stimulus_layers
 from ._readout import announce, readout_from_plan, readout_text, verdict_line
 
 if TYPE_CHECKING:
@@ -134,6 +135,31 @@ def put_layers(viewer, tuples: Iterable[tuple]) -> list:
             viewer.add_layer(layer)
         added.append(layer)
     return added
+
+
+#: Layers the view is framed on, first found first: the implant, else the retina.
+FRAME_ON = ("implant", "outline", "irradiance", "sequence")
+
+
+def frame_retina(viewer, layers: Iterable, *, margin: float = 0.05) -> None:
+    """Turn the scale bar on (µm, from the layers' units) and fit the view to the implant.
+
+    Without an implant the view fits the retinal map; the SLM-plane layers
+    (far larger, in SLM µm) never set the view. Only the two displayed axes
+    are framed, so a frame axis keeps its position.
+    """
+    viewer.canvas.overlays.scale_bar.visible = True
+    by_name = {layer.name: layer for layer in layers}
+    for key in FRAME_ON:
+        layer = by_name.get(LAYER_NAMES[key])
+        if layer is None:
+            continue
+        lo, hi = np.asarray(layer.extent.world, dtype=float)[:, -2:]
+        size = np.maximum(hi - lo, 1e-9)
+        canvas = np.asarray(viewer.canvas.size, dtype=float)
+        viewer.scene.camera.center = tuple((lo + hi) / 2)
+        viewer.scene.camera.zoom = float((1 - margin) * np.min(canvas / size))
+        return
 
 
 def _message(exc: BaseException) -> str:
@@ -430,7 +456,7 @@ class StimulusPanel(Container):
     def show(self, result) -> None:
         """Put a :class:`~stimplan_napari._compute.StimulusResult` into the viewer."""
         self.result = result
-        put_layers(self._viewer, stimulus_layers(result))
+        frame_retina(self._viewer, put_layers(self._viewer, stimulus_layers(result)))
         sp = result.stimulus_plan
         text = f"done: efficiency {sp.metrics.efficiency:.3f}"
         if result.pixel_power_uw is not None and result.on is not None and result.on.any():
@@ -538,7 +564,7 @@ class SequencePanel(Container):
             f"{plan.duration_ms / 1e3:.3g} s, verdict {plan.verdict}"
         )
         if add_layers:
-            put_layers(self._viewer, plan_layers(plan))
+            frame_retina(self._viewer, put_layers(self._viewer, plan_layers(plan)))
             panel = _readout_panel(self._viewer)
             if panel is not None:
                 panel.show_plan(plan)

@@ -222,7 +222,7 @@ class ExposureAssessment:
         if w.x_um is not None:
             text += (
                 f"; found {self.found_ratio:.3g} at x = {w.x_um:.0f} µm, y = {w.y_um:.0f} µm, "
-                f"alpha = {w.alpha_mrad:.3g} mrad, {w.window_duration_ms:.4g} ms from "
+                f"α = {w.alpha_mrad:.3g} mrad, {w.window_duration_ms:.4g} ms from "
                 f"{w.window_start_ms:.4g} ms"
             )
         return text

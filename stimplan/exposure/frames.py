@@ -176,12 +176,12 @@ class ProtocolResult:
         parts = [f"protocol cap '{self.cap.name}'"]
         if self.peak_ratio is not None:
             parts.append(
-                f"peak {self.peak_irradiance_mw_per_mm2:.4g} mW/mm^2 is {self.peak_ratio:.4g} of "
+                f"peak {self.peak_irradiance_mw_per_mm2:.4g} mW/mm² is {self.peak_ratio:.4g} of "
                 f"the cap {self.cap.peak_irradiance_mw_per_mm2:.4g}"
             )
         if self.mean_ratio is not None:
             parts.append(
-                f"time average {self.mean_irradiance_mw_per_mm2:.4g} mW/mm^2 is "
+                f"time average {self.mean_irradiance_mw_per_mm2:.4g} mW/mm² is "
                 f"{self.mean_ratio:.4g} of the cap {self.cap.mean_irradiance_mw_per_mm2:.4g}"
             )
         parts.append(f"{self.verdict} the cap")

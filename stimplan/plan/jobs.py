@@ -7,6 +7,7 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
+from ..budget import light_budget, retina_split_mw, slm_fraction
 from ..comparison import pixel_figures, project_mask_on_implant
 from ..gain import gain_factors
 from ..holography import Hologram, add_phase_ramp, design_hologram
@@ -106,11 +107,16 @@ def _evaluate(name, stim, index, spec, system, holo, workers, design=None) -> St
         system.eye.transmission,
     )
     on = hfig = mfig = readout = gain = None
+    on_mw = off_mw = foot_mw = 0.0
     if spec.implant is not None:
         wl = system.illumination.wavelength_nm
         states = pixel_states(design, grid, spec.implant, threshold=spec.on_threshold)
         on = states.on
         readout = spec.implant.readout(pred.irradiance_mw_per_mm2, pg, wavelength_nm=wl)
+        cells = spec.implant.rasterize(pg, "cell", check_fit=False)
+        _, foot_mw = retina_split_mw(pred.irradiance_mw_per_mm2, pg.sample_area_mm2, cells)
+        pd_mw = np.asarray(readout.power_uw, np.float64) * 1e-3
+        on_mw, off_mw = float(pd_mw[states.on].sum()), float(pd_mw[~states.on].sum())
         mread = spec.implant.readout(mp.irradiance_mw_per_mm2, pg, wavelength_nm=wl)
         if on.any():
             hfig = pixel_figures("hologram", readout, on)
@@ -125,6 +131,20 @@ def _evaluate(name, stim, index, spec, system, holo, workers, design=None) -> St
                     eye_transmission=system.eye.transmission,
                     field_area_mm2=mp.field_area_mm2,
                 )
+    acc = pred.account
+    slm = system.slm
+    budget = light_budget(
+        acc,
+        slm_fraction=slm_fraction(system),
+        fill_factor=slm.fill_factor,
+        zero_order_fraction=slm.zero_order_fraction,
+        phase_levels=slm.phase_levels,
+        eye_transmission=system.eye.transmission,
+        retina_mw=acc.retina_mw,
+        footprint_mw=foot_mw,
+        on_photodiodes_mw=on_mw,
+        off_photodiodes_mw=off_mw,
+    )
     return StimulusPlan(
         name=name,
         hologram_index=index,
@@ -138,6 +158,7 @@ def _evaluate(name, stim, index, spec, system, holo, workers, design=None) -> St
         mask_figures=mfig,
         readout=readout,
         gain=gain,
+        budget=budget,
     )
 
 

@@ -7,6 +7,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from ..budget import LightBudget
 from ..cautions import CAUTIONS
 from ..comparison import ProjectorFigures
 from ..errors import ConfigError
@@ -48,6 +49,8 @@ class StimulusPlan:
     gain : GainFactors or None
         The hologram's ON-pixel gain over the mask as efficiency × area ×
         coverage (None without ON pixels).
+    budget : LightBudget or None
+        Where the light goes at 1 mW on the SLM, laser to ON photodiodes.
     grid : RetinalGrid
         The prediction grid.
 
@@ -73,6 +76,7 @@ class StimulusPlan:
         mask_figures: ProjectorFigures | None = None,
         readout: object | None = None,
         gain: GainFactors | None = None,
+        budget: LightBudget | None = None,
     ) -> None:
         self.name = name
         self.hologram_index = hologram_index
@@ -90,6 +94,7 @@ class StimulusPlan:
         self.mask_figures = mask_figures
         self.readout = readout
         self.gain = gain
+        self.budget = budget
 
     target = property(lambda self: spooled_value(self._parts["target"]), doc="The Target.")
     hologram = property(lambda self: spooled_value(self._parts["hologram"]), doc="The Hologram.")

@@ -19,9 +19,10 @@ import numpy as np
 
 from .. import __version__
 from ..atomic import atomic_file
+from ..budget import BUDGET_LABELS
 from ..cautions import CAUTIONS, EDITION
 from ..plan.evaluate import mask_exposure, max_laser_power_mw
-from .summary import stimulus_rows
+from .summary import budget_text, stimulus_rows
 
 __all__ = ["render_report", "write_report"]
 
@@ -69,6 +70,11 @@ def _outline(ax, plan, **kw):
     )
 
 
+#: The retina's colour scale ends at this percentile of the lit samples (speckle peaks
+#: would otherwise set it, and the pattern would look dim); the true peak is printed.
+COLOUR_PERCENTILE = 99.5
+
+
 def _stimulus_figures(plan, sp, power_mw: float) -> list[tuple[str, str]]:
     import matplotlib
 
@@ -94,10 +100,16 @@ def _stimulus_figures(plan, sp, power_mw: float) -> list[tuple[str, str]]:
     fig.colorbar(im, ax=ax, fraction=0.046)
     ax = axes[2]
     irr = sp.prediction.irradiance_mw_per_mm2 * np.float32(power_mw)
-    im = ax.imshow(irr, extent=_extent(pg), cmap="inferno", origin="upper")
+    peak = float(irr.max())
+    lit = irr[irr > 0]
+    top = float(np.percentile(lit, COLOUR_PERCENTILE)) if lit.size else 1.0
+    im = ax.imshow(irr, extent=_extent(pg), cmap="inferno", origin="upper", vmin=0, vmax=top)
     _outline(ax, plan)
     ax.plot([0], [0], "c+", ms=10)
-    ax.set_title(f"predicted retina at {power_mw:.3g} mW (mW/mm²)")
+    ax.set_title(
+        f"predicted retina at {power_mw:.3g} mW (mW/mm²)\n"
+        f"colours to the {COLOUR_PERCENTILE:g}th percentile; true peak {peak:.3g}"
+    )
     fig.colorbar(im, ax=ax, fraction=0.046)
     for a in (axes[0], axes[2]):
         a.set_xlabel("x (µm)")
@@ -143,12 +155,49 @@ def _stimulus_figures(plan, sp, power_mw: float) -> list[tuple[str, str]]:
                 sp.hologram_figures.on_power_uw * power_mw,
                 sp.mask_figures.on_power_uw * power_mw,
             ]
-            ax.bar(labels, vals, color=["tab:red", "tab:gray"])
+            bars = ax.bar(labels, vals, color=["tab:red", "tab:gray"])
+            ax.bar_label(bars, labels=[f"{v:.3g} µW" for v in vals])
             ax.set_ylabel("mean ON-pixel power (µW)")
-            ax.set_yscale("log")
-            ax.set_title(f"same laser power ({power_mw:.3g} mW)")
+            ax.set_ylim(0, max(vals) * 1.15)
+            ax.set_title(f"same laser power ({power_mw:.3g} mW): {vals[0] / vals[1]:.3g}×")
         out.append(("Per-pixel power", _fig_to_data_uri(fig)))
+    if sp.budget is not None and power_mw > 0:
+        out.append(("Light budget", _budget_figure(plt, sp.budget.scaled(power_mw))))
     return out
+
+
+def _budget_figure(plt, budget) -> str:
+    """A waterfall: the laser power, each loss taken off in turn, down to the ON photodiodes."""
+    entries = budget.entries()
+    fig, ax = plt.subplots(figsize=(13, 3.8), layout="constrained")
+    level = budget.laser_mw
+    names, lefts, widths, colours = ["laser"], [0.0], [level], ["tab:blue"]
+    for key, label in BUDGET_LABELS.items():
+        if key == "on_photodiodes_mw":
+            continue
+        level -= entries[key]
+        names.append(label)
+        lefts.append(level)
+        widths.append(entries[key])
+        colours.append("tab:gray")
+    names.append("ON photodiodes")
+    lefts.append(0.0)
+    widths.append(entries["on_photodiodes_mw"])
+    colours.append("tab:red")
+    y = np.arange(len(names))[::-1]
+    ax.barh(y, widths, left=lefts, color=colours)
+    for yy, left, w in zip(y, lefts, widths, strict=True):
+        ax.text(left + w, yy, f" {w:.3g} mW ({w / budget.laser_mw:.1%})", va="center", fontsize=8)
+    ax.axvline(budget.deliverable_mw, color="k", ls="--", lw=1)
+    ax.text(budget.deliverable_mw, y[0] + 0.5, " deliverable", fontsize=8)
+    ax.set_yticks(y, names, fontsize=8)
+    ax.set_xlim(0, budget.laser_mw * 1.25)
+    ax.set_xlabel("power (mW), laser to photodiodes")
+    ax.set_title(
+        f"light budget: {budget.on_share_of_laser:.1%} of the laser and "
+        f"{budget.on_share_of_deliverable:.1%} of the deliverable light on the ON photodiodes"
+    )
+    return _fig_to_data_uri(fig)
 
 
 def _sequence_figures(plan) -> list[tuple[str, str]]:
@@ -206,11 +255,52 @@ def _sequence_figures(plan) -> list[tuple[str, str]]:
         ax.set_yscale("log")
         ax.axhline(1.0, color="k", ls="--", lw=1)
         ax.text(0.01, 1.1, "limit", transform=ax.get_yaxis_transform())
-        ax.set_ylabel("exposure / limit (log)")
+        ax.set_ylabel("exposure / limit (log scale: ratios span decades)")
         ax.legend(fontsize=8)
         ax.set_title("exposure ratios (estimate, not a safety approval)")
         out.append(("Exposure ratios against the limit", _fig_to_data_uri(fig)))
     return out
+
+
+#: Labels and units of the optical system's summary (``OpticalSystem.summary``).
+SYSTEM_LABELS = {
+    "sample_pitch_x_um": ("retinal sample pitch, x", "µm"),
+    "sample_pitch_y_um": ("retinal sample pitch, y", "µm"),
+    "field_width_um": ("retinal field width", "µm"),
+    "field_width_deg": ("retinal field width", "°"),
+    "max_steer_deg": ("largest steering angle", "°"),
+    "beam_diameter_at_pupil_mm": ("beam diameter at the pupil", "mm"),
+    "overfills_pupil": ("beam overfills the pupil", ""),
+}
+
+#: Terms the report uses, defined once (shown under the stimuli's tables).
+TERMS = (
+    ("efficiency", "the fraction of the laser power that lands on the lit target region"),
+    (
+        "uniformity",
+        "1 - (max - min) / (max + min) of the irradiance averaged over each design sample, "
+        "over the lit region (1 is perfectly even; Di Leonardo et al. 2007)",
+    ),
+    (
+        "RMS error",
+        "rms(k I - T) / mean(T) over the lit region dilated by two samples, k the "
+        "least-squares scale of the prediction I to the target T (Fienup 1982)",
+    ),
+    (
+        "speckle contrast",
+        "σ / mean of the irradiance over the lit region at full resolution (Goodman 2007)",
+    ),
+    ("ON pixel", "an implant pixel whose photodiode the stimulus lights (the rest are OFF)"),
+    ("CV", "coefficient of variation: standard deviation over mean, across the ON pixels"),
+)
+
+
+def _system_row(key: str, value) -> tuple[str, str]:
+    label, unit = SYSTEM_LABELS.get(key, (key.replace("_", " "), ""))
+    if isinstance(value, bool):
+        return label, "yes" if value else "no"
+    text = f"{value:.4g}" if isinstance(value, float) else str(value)
+    return label, f"{text} {unit}".strip()
 
 
 def _table(rows: list[tuple[str, str]]) -> str:
@@ -236,9 +326,9 @@ def render_report(plan) -> str:
         f"<div class='caution'><b>Caution.</b> {html.escape(CAUTIONS)}</div>",
         "<h2>Optical system</h2>",
         _table(
-            [(k, f"{v:.4g}" if isinstance(v, float) else str(v)) for k, v in sysm.summary().items()]
+            [_system_row(k, v) for k, v in sysm.summary().items()]
             + [
-                ("wavelength_nm", f"{sysm.illumination.wavelength_nm:g}"),
+                ("wavelength", f"{sysm.illumination.wavelength_nm:g} nm"),
                 ("eye", sysm.eye.name),
                 (
                     "implant",
@@ -295,6 +385,9 @@ def render_report(plan) -> str:
     for title, uri in _sequence_figures(plan):
         parts.append(f"<h3>{html.escape(title)}</h3><img src='{uri}' alt='{html.escape(title)}'>")
     parts.append("<h2>Stimuli</h2>")
+    parts.append(
+        "<p>" + "; ".join(f"<b>{html.escape(t)}</b>: {html.escape(d)}" for t, d in TERMS) + ".</p>"
+    )
     legible = {r["hologram_index"]: r for r in stimulus_rows(plan)}
     for sp in plan.holograms:
         frames = [f for f in plan.frames if f.hologram_index == sp.hologram_index and f.lit]
@@ -339,6 +432,8 @@ def render_report(plan) -> str:
                     + ("resolvable" if row["resolvable"] else "NOT resolvable"),
                 )
             )
+        if row["light_budget"] is not None:
+            rows.append(("light budget", budget_text(row["light_budget"])))
         parts.append(_table(rows))
         for w in row["warnings"]:
             parts.append(f"<p class='warning'>{html.escape(w)}</p>")

@@ -8,12 +8,14 @@ from __future__ import annotations
 import sys
 
 from .. import __version__
+from ..budget import BUDGET_LABELS
 from ..cautions import CAUTIONS
 from ..legibility import legibility
+from ..plan import REFERENCE_POWER_MW
 from ..plan.evaluate import mask_exposure, max_laser_power_mw, stimulus_exposures
 from .export import json_safe
 
-__all__ = ["stimulus_rows", "plan_summary", "print_table"]
+__all__ = ["stimulus_rows", "plan_summary", "print_table", "budget_text"]
 
 
 def stimulus_rows(plan) -> list[dict]:
@@ -50,6 +52,10 @@ def stimulus_rows(plan) -> list[dict]:
                 # hologram over mask ON-pixel power = efficiency x area x coverage
                 "gain_factors": None if sp.gain is None else sp.gain.as_dict(),
                 "gain_over_mask": None if sp.gain is None else sp.gain.ratio,
+                # laser to photodiodes at this stimulus's power (entries sum to laser_mw)
+                "light_budget": None
+                if sp.budget is None or power <= 0
+                else sp.budget.scaled(power / REFERENCE_POWER_MW).as_dict(),
                 "exposure_ratio": None if exp is None else exp.worst_ratio,
                 "verdict": None if exp is None else exp.verdict,
                 "finest_detail_um": None if leg is None else leg.detail_um,
@@ -107,6 +113,20 @@ def plan_summary(plan) -> dict:
         "cautions": CAUTIONS,
     }
     return json_safe(out)
+
+
+def budget_text(budget: dict) -> str:
+    """One line: the laser power, each entry's share and the ON photodiodes' shares."""
+    laser = budget["laser_mw"]
+    parts = [f"{BUDGET_LABELS[k]} {budget[k] / laser:.1%}" for k in BUDGET_LABELS]
+    return (
+        f"laser {laser:.3g} mW -> "
+        + ", ".join(parts)
+        + f"; ON photodiodes {budget['on_share_of_laser']:.1%} of the laser, "
+        f"{budget['on_share_of_deliverable']:.1%} of the deliverable "
+        f"{budget['deliverable_mw']:.3g} mW (zero order {budget['zero_order_mw'] / laser:.2%}, "
+        f"quantisation noise {budget['quantisation_noise_mw'] / laser:.2%}, both on the retina)"
+    )
 
 
 def _num(x):
@@ -173,6 +193,9 @@ def print_table(plan, file=None) -> None:
     for sp in plan.holograms:
         if sp.gain is not None:
             print(f"gain over the mask, {sp.name}: {sp.gain.describe()}", file=file)
+    for r in s["stimuli"]:
+        if r["light_budget"] is not None:
+            print(f"light budget, {r['name']}: {budget_text(r['light_budget'])}", file=file)
     for r in s["stimuli"]:
         for w in r["warnings"]:
             print(f"legibility: {w}", file=file)
