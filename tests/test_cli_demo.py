@@ -51,6 +51,7 @@ def test_check_json_has_the_documented_keys(seq, capsys):
     for s in data["stimuli"]:
         assert {"name", "efficiency", "on_pixel_power_uw", "on_pixel_cv"} <= set(s)
         assert {"resolvable", "warnings", "finest_detail_um"} <= set(s)
+        assert {"gain_factors", "gain_over_mask", "light_budget"} <= set(s)
         assert isinstance(s["warnings"], list)
         assert {"hologram", "mask"} <= set(s["on_pixel_power_uw"])
         assert s["on_pixel_power_uw"]["hologram"] > s["on_pixel_power_uw"]["mask"]
@@ -271,3 +272,67 @@ def test_a_bug_exits_3_and_memory_exhaustion_exits_1(tiny, capsys, monkeypatch, 
     assert json.loads(capsys.readouterr().out)["exit_code"] == code
     assert main(["check", str(tiny)]) == code
     assert text in capsys.readouterr().err
+
+
+HUMAN_RINGS = """
+format = "stimplan-sequence/1"
+title = "two Landolt rings on the clinical array (demo values)"
+
+[optics.slm]
+pixels_x = 128
+pixels_y = 128
+pitch_um = 8.0
+fill_factor = 0.93
+
+[optics.laser]
+wavelength_nm = 880
+power_mw = 1.0
+waist_mm = 0.33
+
+[optics.relay]
+magnification = 0.5
+
+[eye]
+preset = "human"
+
+[implant]
+preset = "human_100um"
+
+[hologram]
+iterations = 5
+
+[stimuli.ring_11]
+kind = "landolt"
+logmar = 1.1
+
+[stimuli.ring_19]
+kind = "landolt"
+logmar = 1.9
+
+[[steps]]
+stimulus = "ring_11"
+duration_ms = 100
+pulse_ms = 10
+rate_hz = 10
+
+[[steps]]
+stimulus = "ring_19"
+duration_ms = 100
+pulse_ms = 10
+rate_hz = 10
+"""
+
+
+def test_check_flags_a_landolt_c_finer_than_the_clinical_array(tmp_path, capsys):
+    # logMAR 1.1: MAR 10^1.1 = 12.6 arcmin; its gap (one MAR) on the human eye's
+    # 288 µm/deg is 12.6/60 * 288 = 60 µm, under the 100 µm pitch: flagged. logMAR 1.9:
+    # 79.4 arcmin, a 381 µm gap: resolved. Sources: Bailey & Lovie (1976) (logMAR);
+    # ISO 8596 (the gap is one MAR); Drasdo & Fowler (1974) (288 µm/deg); Lorach et al.
+    # (2015) (the sampling limit is one pixel pitch).
+    path = tmp_path / "rings.toml"
+    path.write_text(HUMAN_RINGS)
+    assert main(["check", str(path), "--json"]) == 0
+    rows = {s["name"]: s for s in json.loads(capsys.readouterr().out)["stimuli"]}
+    assert rows["ring_11"]["resolvable"] is False and rows["ring_11"]["warnings"]
+    assert rows["ring_11"]["finest_detail_um"] == pytest.approx(10**1.1 / 60 * 288.0, rel=1e-6)
+    assert rows["ring_19"]["resolvable"] is True and not rows["ring_19"]["warnings"]
