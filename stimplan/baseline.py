@@ -19,6 +19,13 @@ References
 .. [2] L. J. Hornbeck, "Digital Light Processing for high-brightness,
    high-resolution applications", *Proc. SPIE* 3013, 27 (1997) (DMD mirror
    reflectivity and fill factor; cited from memory).
+.. [3] Opt. Express 16(3), 1669 (2008), doi:10.1364/OE.16.001669 (an LCoS
+   display's fill factor "exceeding 90 %"); Spatialight, SLM M4-704x512
+   product note (1996) (aperture ratio 76 %, aperture × reflectivity "over
+   60 %").
+.. [4] S. M. Popoff et al., "A practical guide to digital micro-mirror
+   devices (DMDs) for wavefront shaping", arXiv:2311.17496 (2023) (array
+   fill factor about 88-92 %).
 """
 
 from __future__ import annotations
@@ -32,7 +39,15 @@ from . import validate
 from .errors import ConfigError
 from .grid import RetinalGrid
 
-__all__ = ["AmplitudeMask", "MaskPrediction", "project_mask", "MASK_PRESETS"]
+__all__ = [
+    "AmplitudeMask",
+    "MaskPreset",
+    "MaskPrediction",
+    "project_mask",
+    "MASK_KINDS",
+    "MASK_PRESETS",
+    "MASK_PRESET_INFO",
+]
 
 
 @dataclass(frozen=True)
@@ -41,11 +56,13 @@ class AmplitudeMask:
 
     Parameters
     ----------
-    kind : {"lcd", "dmd"}
-        Panel type (a label; the figures below set its behaviour).
+    kind : {"lcd", "lcos", "dmd"}
+        Panel type (a label; the figures below set its behaviour): a colour
+        LCD under a backlight, an amplitude LCoS (or monochrome LCD) lit by
+        polarised laser light, or a DMD.
     efficiency : float
-        LCD total transmission or DMD fraction of light sent to the ON
-        direction, in (0, 1].
+        Total transmission (LCD, LCoS) or fraction of the light sent to the ON
+        direction (DMD), in (0, 1]; the panel's fill factor is part of it.
     contrast_ratio : float
         Full-on over full-off irradiance, >= 1.
     field_width_um, field_height_um : float, optional
@@ -60,7 +77,7 @@ class AmplitudeMask:
     field_height_um: float | None = None
 
     def __post_init__(self) -> None:
-        validate.choice("mask.kind", self.kind, ("lcd", "dmd"))
+        validate.choice("mask.kind", self.kind, MASK_KINDS)
         object.__setattr__(
             self,
             "efficiency",
@@ -79,13 +96,78 @@ class AmplitudeMask:
                 )
 
 
-#: Typical panels. LCD: 7 % total transmission (den Boer 2005, §6.1: 5-10 %).
-#: DMD: about 0.9 mirror reflectivity × 0.92 fill × diffraction into ON ≈ 0.65
-#: (from memory).
-MASK_PRESETS: dict[str, AmplitudeMask] = {
-    "lcd": AmplitudeMask("lcd", 0.07, 1000.0),
-    "dmd": AmplitudeMask("dmd", 0.65, 2000.0),
+#: The panel types a mask may be.
+MASK_KINDS = ("lcd", "lcos", "dmd")
+
+
+@dataclass(frozen=True)
+class MaskPreset:
+    """A typical panel: its figures and where each comes from.
+
+    Attributes
+    ----------
+    mask : AmplitudeMask
+    label : str
+    fill_factor : float
+        Open (or mirror) area share of a panel pixel; already part of the
+        mask's ``efficiency``.
+    sources : dict of str to str
+        For ``efficiency``, ``fill_factor`` and ``contrast_ratio``: the source,
+        or "from memory" where no text was at hand.
+    """
+
+    mask: AmplitudeMask
+    label: str
+    fill_factor: float
+    sources: dict
+
+    def describe(self) -> str:
+        m = self.mask
+        return (
+            f"{self.label}: efficiency {m.efficiency:.2g} ({self.sources['efficiency']}), "
+            f"fill factor {self.fill_factor:.2g} ({self.sources['fill_factor']}), "
+            f"contrast {m.contrast_ratio:.0f}:1 ({self.sources['contrast_ratio']})"
+        )
+
+
+#: Typical panels, with their sources. All figures are for visible light; at 880 nm a
+#: colour filter passes more and a polariser blocks less (so the colour LCD is if
+#: anything a pessimistic mask), and a DMD's window and blaze change its share.
+MASK_PRESET_INFO: dict[str, MaskPreset] = {
+    "lcd": MaskPreset(
+        AmplitudeMask("lcd", 0.07, 1000.0),
+        "colour LCD under a backlight",
+        0.55,
+        {
+            "efficiency": "den Boer 2005, §6.1.1: total transmittance 5-10 %",
+            "fill_factor": "den Boer 2005, §6.1.1: aperture ratio 40-70 %",
+            "contrast_ratio": "from memory",
+        },
+    ),
+    "lcos": MaskPreset(
+        AmplitudeMask("lcos", 0.6, 1000.0),
+        "amplitude LCoS (or monochrome LCD) lit by polarised laser light",
+        0.9,
+        {
+            "efficiency": "Spatialight 1996: aperture x reflectivity over 60 %",
+            "fill_factor": "Opt. Express 16, 1669 (2008): fill factor exceeding 90 %",
+            "contrast_ratio": "from memory",
+        },
+    ),
+    "dmd": MaskPreset(
+        AmplitudeMask("dmd", 0.65, 2000.0),
+        "DMD",
+        0.9,
+        {
+            "efficiency": "from memory: fill x mirror reflectivity x window x diffraction",
+            "fill_factor": "Popoff et al. 2023: array fill factor about 88-92 %",
+            "contrast_ratio": "from memory",
+        },
+    ),
 }
+
+#: The presets' masks, by kind.
+MASK_PRESETS: dict[str, AmplitudeMask] = {k: p.mask for k, p in MASK_PRESET_INFO.items()}
 
 
 @dataclass(frozen=True)

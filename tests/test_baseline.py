@@ -88,3 +88,20 @@ def test_mask_rejects_bad_values():
         AmplitudeMask(efficiency=1.5)
     with pytest.raises(ConfigError, match="mask.contrast_ratio"):
         AmplitudeMask(contrast_ratio=0.5)
+
+
+def test_mask_presets_match_their_published_figures():
+    # Sources: den Boer, Active Matrix Liquid Crystal Displays (2005), §6.1.1 (colour
+    # AMLCD: total transmittance 5-10 %, aperture ratio 40-70 %); Opt. Express 16, 1669
+    # (2008) (LCoS fill factor over 90 %); Popoff et al., arXiv:2311.17496 (2023) (DMD
+    # fill factor about 88-92 %).
+    from stimplan.baseline import MASK_PRESET_INFO
+
+    lcd, lcos, dmd = (MASK_PRESET_INFO[k] for k in ("lcd", "lcos", "dmd"))
+    assert 0.05 <= lcd.mask.efficiency <= 0.10 and 0.40 <= lcd.fill_factor <= 0.70
+    assert lcos.fill_factor >= 0.9 and lcos.mask.efficiency >= 0.6
+    assert 0.88 <= dmd.fill_factor <= 0.92
+    for p in (lcd, lcos, dmd):
+        # the fill factor is part of the efficiency: no panel passes more than its open area
+        assert p.mask.efficiency <= p.fill_factor
+        assert set(p.sources) == {"efficiency", "fill_factor", "contrast_ratio"}

@@ -22,7 +22,7 @@ from ..atomic import atomic_file
 from ..budget import BUDGET_LABELS
 from ..cautions import CAUTIONS, EDITION
 from ..plan.evaluate import mask_exposure, max_laser_power_mw
-from .summary import budget_text, stimulus_rows
+from .summary import budget_text, mask_entry, stimulus_rows
 
 __all__ = ["render_report", "write_report"]
 
@@ -330,6 +330,11 @@ def render_report(plan) -> str:
             + [
                 ("wavelength", f"{sysm.illumination.wavelength_nm:g} nm"),
                 ("eye", sysm.eye.name),
+                (
+                    "mask compared against",
+                    mask_entry(spec.mask)["preset"]
+                    or f"{spec.mask.kind}, efficiency {spec.mask.efficiency:.3g} (custom)",
+                ),
                 (
                     "implant",
                     "none"

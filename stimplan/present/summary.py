@@ -8,6 +8,7 @@ from __future__ import annotations
 import sys
 
 from .. import __version__
+from ..baseline import MASK_PRESET_INFO
 from ..budget import BUDGET_LABELS
 from ..cautions import CAUTIONS
 from ..legibility import legibility
@@ -15,7 +16,7 @@ from ..plan import REFERENCE_POWER_MW
 from ..plan.evaluate import mask_exposure, max_laser_power_mw, stimulus_exposures
 from .export import json_safe
 
-__all__ = ["stimulus_rows", "plan_summary", "print_table", "budget_text"]
+__all__ = ["stimulus_rows", "plan_summary", "print_table", "budget_text", "mask_entry"]
 
 
 def stimulus_rows(plan) -> list[dict]:
@@ -105,6 +106,7 @@ def plan_summary(plan) -> dict:
                 "mask": max_laser_power_mw(plan, "mask"),
             },
         },
+        "mask": mask_entry(plan.spec.mask),
         "beam": {
             "at_pupil_mm": system.beam_diameter_at_pupil_mm,
             "pupil_mm": system.eye.pupil_diameter_mm,
@@ -113,6 +115,18 @@ def plan_summary(plan) -> dict:
         "cautions": CAUTIONS,
     }
     return json_safe(out)
+
+
+def mask_entry(mask) -> dict:
+    """The mask compared against: its figures, and its preset's sources if it is one."""
+    preset = MASK_PRESET_INFO.get(mask.kind)
+    same = preset is not None and preset.mask == mask
+    return {
+        "kind": mask.kind,
+        "efficiency": mask.efficiency,
+        "contrast_ratio": mask.contrast_ratio,
+        "preset": preset.describe() if same else None,
+    }
 
 
 def budget_text(budget: dict) -> str:
@@ -193,6 +207,12 @@ def print_table(plan, file=None) -> None:
     for sp in plan.holograms:
         if sp.gain is not None:
             print(f"gain over the mask, {sp.name}: {sp.gain.describe()}", file=file)
+    m = s["mask"]
+    print(
+        "mask compared against: "
+        + (m["preset"] or f"{m['kind']}, efficiency {m['efficiency']:.3g}, custom figures"),
+        file=file,
+    )
     for r in s["stimuli"]:
         if r["light_budget"] is not None:
             print(f"light budget, {r['name']}: {budget_text(r['light_budget'])}", file=file)
