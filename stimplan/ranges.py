@@ -52,7 +52,7 @@ RANGES = MappingProxyType(
             0.0, 1e4, "10 W is far more than a phase SLM can take", lo_open=True
         ),
         "irradiance_mw_per_mm2": PhysicalRange(
-            0.0, 1e4, "10 W/mm^2 on the retina is beyond any exposure limit", lo_open=True
+            0.0, 1e4, "10 W/mm² on the retina is beyond any exposure limit", lo_open=True
         ),
         "beam_waist_mm": PhysicalRange(
             1e-3, 1e3, "a beam under 1 µm or over 1 m wide cannot illuminate an SLM"

@@ -71,6 +71,7 @@ def test_stimulus_panel_computes_layers_in_micrometres(make_napari_viewer, qtbot
     panel = _dock(viewer, "Stimulus and hologram")
     panel.optics.value = "rat grating-acuity demo"
     panel.slm_pixels.value = 128
+    panel.power_by.value = "laser power"
     panel.laser_power_mw.value = 2.0
     panel.kind.value = "spot"
     panel.param_widgets["diameter_um"].value = 400.0
@@ -130,7 +131,13 @@ def test_stimulus_panel_computes_layers_in_micrometres(make_napari_viewer, qtbot
     assert zero.data[0] == pytest.approx([0.0, 0.0])
 
     readout = _dock(viewer, "Exposure and efficiency")
-    assert "efficiency" in readout.figures.value
+    # one table row per stimulus, in the units the CLI uses
+    assert "ON pixel, hologram (µW)" in readout.table.column_headers
+    (row,) = readout.table.data.to_list()
+    cols = list(readout.table.column_headers)
+    on_uw = res.pixel_power_uw[res.on].mean()
+    assert row[cols.index("ON pixel, hologram (µW)")] == f"{on_uw:.3g}"
+    assert row[cols.index("legibility")] == "ok"  # a 400 µm spot on 55 µm pixels
     assert "not a safety approval" in readout.figures.value  # the cautions go with it
     assert "not a safety approval" in readout.verdict.value
 
@@ -358,26 +365,40 @@ def test_an_optotype_can_be_sized_by_logmar(make_napari_viewer):
     panel.kind.value = "landolt"
     panel.param_widgets["size_by"].value = "logMAR"
     panel.param_widgets["logmar"].value = 1.0
-    panel.implant_aware.value = False  # a 240 µm ring turns no 100 µm pixel half on
+    panel.implant_aware.value = False  # a 240 µm ring turns no 100 µm pixel half on,
+    panel.power_by.value = "laser power"  # so no ON-pixel irradiance can be its target
     res = compute_stimulus(panel.request())
     ring = res.plan.spec.stimuli["landolt"]
     assert ring.height_um == pytest.approx(5 * 10 / 60 * 288.0, rel=1e-6)
+    # its 48 µm gap is under the 100 µm pitch: the readout's table says so
+    # (Source: Lorach et al. 2015, the sampling limit is one pixel pitch; ISO 8596)
+    panel.show(res)
+    readout = _dock(viewer, "Exposure and efficiency")
+    cols = list(readout.table.column_headers)
+    (row,) = readout.table.data.to_list()
+    assert "48 µm" in row[cols.index("legibility")], row
 
 
 @pytest.mark.parametrize("optics", ["rat grating-acuity demo", "human letter-acuity demo"])
-def test_the_panels_defaults_stay_within_the_demo_protocol(make_napari_viewer, optics):
+@pytest.mark.parametrize("kind", ["grating", "landolt", "spot"])
+def test_the_panels_defaults_stay_within_the_demo_protocol(make_napari_viewer, optics, kind):
     # A first click on "compute" must not plan light above the standard or the
-    # scenario's own protocol cap (the demo [limits], our own numbers). common practice
-    from stimplan.plan.evaluate import max_laser_power_mw
+    # scenario's own protocol cap (the demo [limits], our own numbers), whatever the
+    # stimulus: the panel sets the power by a target ON-pixel irradiance. common practice
     from stimplan_napari._compute import compute_stimulus
 
     viewer = make_napari_viewer()
     panel = _dock(viewer, "Stimulus and hologram")
     panel.optics.value = optics
     panel.slm_pixels.value = 128  # coarser sampling of the same field, for speed
+    panel.iterations.value = 10
+    panel.kind.value = kind
     res = compute_stimulus(panel.request())
     e = res.plan.exposure
     assert res.plan.verdict == "within", e.binding_text()
     if e.protocol is not None:
         assert e.protocol.worst_ratio < 1.0
-    assert panel.laser_power_mw.value <= max_laser_power_mw(res.plan)
+    # the laser power is the one that meets the target on the ON photodiodes
+    h = res.stimulus_plan.hologram_figures
+    target = panel.irradiance.value
+    assert h.on_irradiance_mw_per_mm2 * res.power_mw == pytest.approx(target, rel=1e-6)

@@ -257,3 +257,19 @@ def test_a_spooled_plan_removes_its_folder_on_close(tmp_path):
         assert sp.hologram.phase_rad.shape == plan.spec.system.slm.shape
     assert not folder.exists()
     plan.close()  # closing twice is harmless
+
+
+def test_an_irradiance_target_on_no_on_pixel_is_a_clear_error():
+    # common practice: a target irradiance "on the ON pixels" needs an ON pixel; the
+    # message names the step's key, not a crash deep inside
+    from stimplan.errors import ConfigError
+    from stimplan.sequence import parse_sequence
+
+    text = small_sequence().replace('kind = "grating"\nbar_width_px = 2', 'kind = "spot"', 1)
+    text = text.replace("[stimuli.spot]", "diameter_um = 5\n\n[stimuli.spot]", 1)
+    # an image-domain hologram: the 5 µm spot is designed, but turns no pixel ON
+    text = text.replace("iterations = 30", "iterations = 30\nimplant_aware = false", 1)
+    with pytest.raises(ConfigError) as err:
+        plan_sequence(parse_sequence(text), progress=False)
+    assert err.value.field == "steps[0].irradiance_mw_per_mm2"
+    assert "ON" in err.value.allowed

@@ -163,7 +163,11 @@ class StimulusRequest:
     slm_pixels : int
         SLM pixels per side, 0 for the optics' own SLM.
     power_mw : float or None
-        Laser power on the SLM; ``None`` for the optics' own.
+        Laser power on the SLM; ``None`` for the optics' own (or for the
+        power that gives ``irradiance_mw_per_mm2``).
+    irradiance_mw_per_mm2 : float or None
+        Instead of a laser power: the mean irradiance on the ON pixels'
+        photodiodes the laser power is set to (needs an implant).
     pulse_ms, rate_hz, train_ms : float
         The pulse train the exposure estimate assumes.
     """
@@ -178,6 +182,7 @@ class StimulusRequest:
     seed: int = 0
     slm_pixels: int = 0
     power_mw: float | None = None
+    irradiance_mw_per_mm2: float | None = None
     pulse_ms: float = 10.0
     rate_hz: float = 20.0
     train_ms: float = 1000.0
@@ -270,12 +275,21 @@ def _one_step_spec(request: StimulusRequest):
         group_weighting=aware,
         group_gain=base.ifta.group_gain,
     )
+    target = request.irradiance_mw_per_mm2
+    if target is not None and implant is None:
+        raise ConfigError(
+            "power by",
+            "ON-pixel irradiance",
+            "an implant (the irradiance is read on its ON pixels)",
+            "choose an implant, or set the laser power",
+        )
     step = StepSpec(
         (request.kind,),
         duration_ms=request.train_ms,
         pulse_ms=request.pulse_ms,
         rate_hz=request.rate_hz,
-        power_mw=power,
+        power_mw=None if target is not None else power,
+        irradiance_mw_per_mm2=target,
     )
     return replace(
         base,
@@ -328,6 +342,8 @@ def compute_stimulus(
     if not plan.holograms:
         raise ConfigError("stimulus", request.kind, "a stimulus that lights something")
     sp = plan.holograms[0]
+    if request.irradiance_mw_per_mm2 is not None:  # the power that meets the target
+        power = next(f.power_mw for f in plan.frames if f.lit)
     k = power / REFERENCE_POWER_MW
     pred = sp.prediction.scaled_to(power)
     pixel = None if sp.readout is None else np.asarray(sp.readout.power_uw) * k

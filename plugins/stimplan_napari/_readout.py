@@ -21,6 +21,8 @@ __all__ = [
     "Readout",
     "readout_from_plan",
     "readout_text",
+    "readout_table",
+    "TABLE_COLUMNS",
     "verdict_line",
     "plan_alerts",
     "announce",
@@ -167,20 +169,62 @@ def _g(x: float | str | None, spec: str = ".3g") -> str:
     return format(x, spec)
 
 
-def readout_text(r: Readout) -> str:
-    """The readout as plain text, ending with the cautions."""
-    lines = [r.title, ""]
-    lines.append("stimulus: laser mW | efficiency | ON pixel µW hologram / mask (gain) | exposure")
-    for s in r.stimuli:
+#: Columns of the per-stimulus table, with their units.
+TABLE_COLUMNS = (
+    "stimulus",
+    "laser (mW)",
+    "efficiency",
+    "ON pixel, hologram (µW)",
+    "ON pixel, mask (µW)",
+    "gain over mask",
+    "exposure / limit",
+    "verdict",
+    "legibility",
+)
+
+
+def readout_table(r: Readout | None) -> tuple[tuple[str, ...], list[list[str]]]:
+    """The per-stimulus figures as table columns and rows of text (no rows for ``None``)."""
+    rows = []
+    for s in () if r is None else r.stimuli:
         gain = s.gain_over_mask
-        lines.append(
-            f"{s.name}: {_g(s.laser_power_mw)} mW | {_g(s.efficiency, '.3f')} | "
-            f"{_g(s.on_power_uw)} / {_g(s.mask_on_power_uw)} µW"
-            f"{'' if gain is None else f' ({gain:.3g}x)'} | "
-            f"{_g(s.exposure_ratio)} of the limit, {s.verdict or '-'}"
+        rows.append(
+            [
+                s.name,
+                _g(s.laser_power_mw),
+                _g(s.efficiency, ".3f"),
+                _g(s.on_power_uw),
+                _g(s.mask_on_power_uw),
+                "-" if gain is None else f"{gain:.3g}×",
+                _g(s.exposure_ratio),
+                s.verdict or "-",
+                "; ".join(s.warnings) or "ok",
+            ]
         )
-        lines += [f"  legibility: {w}" for w in s.warnings]
-    lines.append("")
+    return TABLE_COLUMNS, rows
+
+
+def readout_text(r: Readout, *, stimuli: bool = True) -> str:
+    """The readout as plain text, ending with the cautions.
+
+    With ``stimuli=False`` the per-stimulus lines are left out (the panel
+    shows them as a table).
+    """
+    lines = [r.title, ""]
+    if stimuli:
+        lines.append(
+            "stimulus: laser mW | efficiency | ON pixel µW hologram / mask (gain) | exposure"
+        )
+        for s in r.stimuli:
+            gain = s.gain_over_mask
+            lines.append(
+                f"{s.name}: {_g(s.laser_power_mw)} mW | {_g(s.efficiency, '.3f')} | "
+                f"{_g(s.on_power_uw)} / {_g(s.mask_on_power_uw)} µW"
+                f"{'' if gain is None else f' ({gain:.3g}x)'} | "
+                f"{_g(s.exposure_ratio)} of the limit, {s.verdict or '-'}"
+            )
+            lines += [f"  legibility: {w}" for w in s.warnings]
+        lines.append("")
     lines.append("exposure of the whole sequence (ratio to the limit of each rule):")
     if not r.rule_ratios:
         lines.append("  nothing is lit")

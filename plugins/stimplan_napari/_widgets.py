@@ -26,13 +26,12 @@ from magicgui.widgets import (
     LineEdit,
     PushButton,
     SpinBox,
-    TextEdit,
 )
 from napari.qt.threading import create_worker
 from napari.utils import progress
 from napari.utils.notifications import show_error, show_info
 
-from stimplan.cautions import CAUTION_SHORT, CAUTIONS
+from stimplan.cautions import CAUTION_SHORT
 from stimplan.errors import StimplanError
 from stimplan.holography import METHODS
 from stimplan.implant import implant_names
@@ -52,8 +51,8 @@ from ._compute import (
     load_optics,
     stimulus_fields,
 )
-from ._layers import LAYER_NAMES, PLAN_KEY, RESULT_KEY, plan_layers, stimulus_layers
-from ._readout import announce, readout_from_plan, readout_text, verdict_line
+from ._layers import LAYER_NAMES, PLAN_KEY, plan_layers, stimulus_layers
+from ._readout import announce
 
 if TYPE_CHECKING:
     import napari
@@ -61,9 +60,9 @@ if TYPE_CHECKING:
 __all__ = [
     "StimulusPanel",
     "SequencePanel",
-    "ReadoutPanel",
     "progress_steps",
     "put_layers",
+    "wrapping",
     "STIMULUS_PANEL",
     "SEQUENCE_PANEL",
     "READOUT_PANEL",
@@ -75,6 +74,12 @@ STIMULUS_PANEL = "Stimulus and hologram"
 SEQUENCE_PANEL = "Sequence"
 READOUT_PANEL = "Exposure and efficiency"
 PLUGIN = "stimplan"
+
+#: How the Stimulus panel sets the power: a target irradiance on the ON pixels'
+#: photodiodes (the laser power follows; within the demo protocols), or the laser power.
+POWER_BY = ("ON-pixel irradiance", "laser power")
+#: The panel's starting target, mW/mm² (the demo scenarios' steps use 0.5-1.5).
+DEFAULT_IRRADIANCE_MW_PER_MM2 = 1.0
 
 #: Optics choice that reads the optics, eye and implant from a sequence file.
 OPTICS_FILE = "sequence file ..."
@@ -238,7 +243,7 @@ class _Background:
         self._button.enabled = True
 
 
-def _wrapping(label: Label) -> Label:
+def wrapping(label: Label) -> Label:
     """A label whose long text wraps instead of widening the panel."""
     from qtpy.QtWidgets import QSizePolicy
 
@@ -334,8 +339,23 @@ class StimulusPanel(Container):
         self.optics = ComboBox(label="optics", choices=[*OPTICS_PRESETS, OPTICS_FILE], value=first)
         self.optics_file = FileEdit(label="optics file", mode="r", filter="*.toml", visible=False)
         self.slm_pixels = SpinBox(label="SLM px (0: as given)", min=0, max=8192, step=64, value=0)
+        self.power_by = ComboBox(label="power by", choices=POWER_BY, value=POWER_BY[0])
+        irr = RANGES["irradiance_mw_per_mm2"]
+        self.irradiance = FloatSpinBox(
+            label="ON-pixel irradiance (mW/mm²)",
+            min=irr.lo + _ABOVE_ZERO,
+            max=irr.hi,
+            step=0.1,
+            value=DEFAULT_IRRADIANCE_MW_PER_MM2,
+        )
+        laser = RANGES["laser_power_mw"]
         self.laser_power_mw = FloatSpinBox(
-            label="laser power (mW)", min=0.001, max=1e4, step=0.1, value=1.0
+            label="laser power (mW)",
+            min=laser.lo + _ABOVE_ZERO,
+            max=laser.hi,
+            step=0.1,
+            value=1.0,
+            visible=False,
         )
         self.implant = ComboBox(
             label="implant", choices=[SOURCE_IMPLANT, *implant_names(), NO_IMPLANT]
@@ -354,12 +374,14 @@ class StimulusPanel(Container):
             label="train length (ms)", min=1e-3, max=3e7, step=100.0, value=1000.0
         )
         self.compute = PushButton(text="compute")
-        self.status = _wrapping(Label(value=""))
+        self.status = wrapping(Label(value=""))
         self.extend(
             [
                 self.optics,
                 self.optics_file,
                 self.slm_pixels,
+                self.power_by,
+                self.irradiance,
                 self.laser_power_mw,
                 self.implant,
                 self.implant_aware,
@@ -378,6 +400,7 @@ class StimulusPanel(Container):
         self.result = None
         self._job = _Background(self.compute, self.status)
         self.kind.changed.connect(self._rebuild_params)
+        self.power_by.changed.connect(self._on_power_by)
         self.optics.changed.connect(self._on_optics)
         self.optics_file.changed.connect(self._on_optics)
         self.compute.changed.connect(self.start)
@@ -424,6 +447,11 @@ class StimulusPanel(Container):
             f"field {s.field_width_um:.0f} µm, {s.eye.name} eye"
         )
 
+    def _on_power_by(self, *_: Any) -> None:
+        by_irradiance = self.power_by.value == POWER_BY[0]
+        self.irradiance.visible = by_irradiance
+        self.laser_power_mw.visible = not by_irradiance
+
     def request(self) -> StimulusRequest:
         """The inputs as a :class:`StimulusRequest`."""
         params = {}
@@ -442,7 +470,10 @@ class StimulusPanel(Container):
             iterations=self.iterations.value,
             seed=self.seed.value,
             slm_pixels=self.slm_pixels.value,
-            power_mw=self.laser_power_mw.value,
+            power_mw=None if self.power_by.value == POWER_BY[0] else self.laser_power_mw.value,
+            irradiance_mw_per_mm2=(
+                self.irradiance.value if self.power_by.value == POWER_BY[0] else None
+            ),
             pulse_ms=self.pulse_ms.value,
             rate_hz=self.rate_hz.value,
             train_ms=self.train_ms.value,
@@ -491,8 +522,8 @@ class SequencePanel(Container):
         self._viewer = viewer
         self.sequence_file = FileEdit(label="sequence file", mode="r", filter="*.toml")
         self.plan_button = PushButton(text="plan sequence")
-        self.status = _wrapping(Label(value=""))
-        self.frame_info = _wrapping(Label(value="no sequence planned"))
+        self.status = wrapping(Label(value=""))
+        self.frame_info = wrapping(Label(value="no sequence planned"))
         self.speed = FloatSpinBox(label="speed (x real time)", min=0.01, max=1000, value=1.0)
         self.play = PushButton(text="play")
         self.export_folder = FileEdit(label="export folder", mode="w")
@@ -500,8 +531,8 @@ class SequencePanel(Container):
         self.replace_existing = CheckBox(text="replace an existing folder", value=False)
         self.reason = LineEdit(label="reason (above limit)", value="")
         self.export_button = PushButton(text="export")
-        self.export_status = _wrapping(Label(value=""))
-        self.caution = _wrapping(Label(value=CAUTION_SHORT))
+        self.export_status = wrapping(Label(value=""))
+        self.caution = wrapping(Label(value=CAUTION_SHORT))
         self.extend(
             [
                 self.sequence_file,
@@ -697,56 +728,3 @@ def _plan_file(path: str, progress: Callable[[int, int], None]):
             progress(done, total)
 
     return plan_sequence(spec, progress=holograms_only)
-
-
-# -- exposure and efficiency ---------------------------------------------------------------
-
-
-class ReadoutPanel(Container):
-    """Efficiency, power per ON pixel against the mask, exposure per rule and the verdict.
-
-    Shows the plan of the stimplan layer last added or selected; every
-    exposure figure is shown with the cautions.
-    """
-
-    def __init__(self, viewer: napari.viewer.Viewer) -> None:
-        super().__init__(labels=False)
-        self._viewer = viewer
-        self.verdict = _wrapping(Label(value="no stimplan result yet"))
-        self.figures = TextEdit(value="")
-        self.figures.native.setReadOnly(True)
-        self.figures.native.setMinimumHeight(220)
-        self.figures.native.setMinimumWidth(240)
-        self.figures.value = "Caution: " + CAUTIONS
-        self.extend([self.verdict, self.figures])
-        self.plan = None
-        self.readout = None
-        viewer.layers.events.inserted.connect(self._on_inserted)
-        viewer.layers.selection.events.active.connect(self._on_active)
-        for layer in viewer.layers:
-            self._take(layer)
-
-    def show_plan(self, plan, title: str | None = None) -> None:
-        """Show the figures of a plan."""
-        self.plan = plan
-        r = readout_from_plan(plan, title)
-        self.readout = r
-        self.verdict.value = verdict_line(r)
-        colour = "#e05050" if r.verdict == "above" else "#50c050"
-        self.verdict.native.setStyleSheet(f"color: {colour}; font-weight: bold")
-        self.figures.value = readout_text(r)
-
-    def _take(self, layer) -> None:
-        md = getattr(layer, "metadata", None) or {}
-        if PLAN_KEY in md and md[PLAN_KEY] is not self.plan:
-            self.show_plan(md[PLAN_KEY])
-        elif RESULT_KEY in md and md[RESULT_KEY].plan is not self.plan:
-            res = md[RESULT_KEY]
-            self.show_plan(res.plan, title=f"stimulus: {res.request.kind}")
-
-    def _on_inserted(self, event) -> None:
-        self._take(event.value)
-
-    def _on_active(self, event) -> None:
-        if event.value is not None:
-            self._take(event.value)

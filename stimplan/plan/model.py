@@ -126,6 +126,13 @@ class StimulusPlan:
         """ON-pixel retinal irradiance per mW of laser power ("mean" or "min")."""
         if self.readout is None or self.on is None:
             raise ConfigError("irradiance_mw_per_mm2", None, "an implant to define ON pixels")
+        if self.hologram_figures is None or not self.on.any():
+            raise ConfigError(
+                "irradiance_mw_per_mm2",
+                self.name,
+                "a stimulus that turns at least one implant pixel ON",
+                "it lights no pixel's photodiode half: give a laser power instead",
+            )
         irr = np.asarray(self.readout.mean_irradiance_mw_per_mm2)[self.on]
         if basis == "min":
             return float(irr.min())

@@ -184,6 +184,13 @@ def resolve_frame(fr, spec, plans) -> FramePlan:
             (),
         )
     if fr.irradiance_mw_per_mm2 is not None:
+        if name_plan.hologram_figures is None:
+            raise ConfigError(
+                f"steps[{fr.step_index}].irradiance_mw_per_mm2",
+                fr.irradiance_mw_per_mm2,
+                "a stimulus that turns at least one implant pixel ON",
+                f"{name!r} lights no pixel's photodiode half: give power_mw instead",
+            )
         per_mw = name_plan.on_irradiance_per_mw(fr.irradiance_basis or "mean")
         if per_mw <= 0:
             raise ConfigError(
