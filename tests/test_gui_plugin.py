@@ -293,7 +293,7 @@ def test_readers_and_writer(make_napari_viewer, tmp_path, warnings_seen):
     # the export reader: the folder or its manifest, grey levels per frame (dark = zeros)
     assert get_export_reader(str(tmp_path)) is None
     assert get_export_reader(str(folder / "manifest.json")) is not None
-    (grey,) = viewer.open(str(folder), plugin=PLUGIN)
+    retina, outline, grey = viewer.open(str(folder), plugin=PLUGIN)
     assert grey.data.shape == (len(plan.frames), 128, 128)
     for i, f in enumerate(plan.frames):
         page = np.asarray(grey.data[i])
@@ -302,6 +302,23 @@ def test_readers_and_writer(make_napari_viewer, tmp_path, warnings_seen):
         else:
             assert np.array_equal(page, bundle.grey[f.hologram_index])
     assert grey.scale[1:] == pytest.approx([8.0, 8.0])  # SLM pitch, µm
+    # ... and the retina those grey levels make, predicted again: the planned map of
+    # each lit frame (common practice: the same levels through the same optics give the
+    # same far field; the plan's own prediction is of its quantised levels too)
+    assert retina.name == LAYER_NAMES["export_retina"] and not grey.visible
+    assert outline.name.startswith(LAYER_NAMES["outline"])  # napari numbers a second one
+    for i, f in enumerate(plan.frames):
+        page = np.asarray(retina.data[i])
+        if not f.lit:
+            assert not page.any()
+            continue
+        ref = plan.holograms[f.hologram_index].prediction.irradiance_mw_per_mm2 * f.power_mw
+        np.testing.assert_allclose(page, ref, rtol=2e-3, atol=1e-4 * float(ref.max()))
+    # the readout shows what the export recorded, with the cautions
+    readout = _dock(viewer, "Exposure and efficiency")
+    viewer.layers.selection.active = retina
+    assert "recorded in the export" in readout.verdict.value
+    assert "not a safety approval" in readout.figures.value
     assert warnings_seen == []
 
 

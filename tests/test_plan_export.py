@@ -273,3 +273,22 @@ def test_an_irradiance_target_on_no_on_pixel_is_a_clear_error():
         plan_sequence(parse_sequence(text), progress=False)
     assert err.value.field == "steps[0].irradiance_mw_per_mm2"
     assert "ON" in err.value.allowed
+
+
+def test_an_export_predicted_again_gives_the_planned_retina(plan, tmp_path):
+    # common practice (a round trip): the grey levels written, read back through the
+    # SLM's grey-level map and propagated again, give the retina the plan predicted
+    from stimplan.present.replay import replay_export
+
+    out = export_plan(plan, tmp_path / "exported")
+    replay = replay_export(load_export(out))
+    assert len(replay.predictions) == len(plan.holograms)
+    for pred, sp in zip(replay.predictions, plan.holograms, strict=True):
+        ref = sp.prediction.irradiance_mw_per_mm2
+        np.testing.assert_allclose(
+            pred.irradiance_mw_per_mm2, ref, rtol=2e-3, atol=1e-4 * float(ref.max())
+        )
+    lit = [f for f in plan.frames if f.lit]
+    assert [k for k in replay.frame_pages if k >= 0] == [f.hologram_index for f in lit]
+    scales = [s for s in replay.frame_scale if s > 0]
+    assert scales == pytest.approx([f.power_mw for f in lit], rel=1e-5)

@@ -13,10 +13,13 @@ import tomllib
 from pathlib import Path
 from typing import Any
 
-from stimplan.errors import ConfigError
+from napari.utils.notifications import show_warning
+
+from stimplan.errors import ConfigError, StimplanError
 from stimplan.plan import plan_sequence
 from stimplan.plan.memory import check_memory
 from stimplan.present.export import export_plan, load_export
+from stimplan.present.replay import replay_export
 from stimplan.sequence import load_sequence
 
 from ._layers import PLAN_KEY, RESULT_KEY, export_layers, plan_layers
@@ -124,11 +127,21 @@ def get_export_reader(path):
 
 
 def read_export(path) -> list[tuple]:
-    """Read an export (checksums verified) as the per-frame SLM grey levels."""
+    """Read an export (checksums verified): its retina predicted again from the grey
+    levels it holds, the implant and the per-frame SLM grey levels.
+
+    If the configuration no longer validates (a lookup table it names has
+    moved, say), a warning says so and only the grey levels are shown.
+    """
 
     bundle = load_export(_one_path(path))
     announce_export(bundle)
-    return export_layers(bundle)
+    try:
+        replay = replay_export(bundle)
+    except StimplanError as exc:
+        show_warning(f"stimplan: the export's retina cannot be predicted again: {exc}")
+        replay = None
+    return export_layers(bundle, replay)
 
 
 def _plan_of(meta: dict) -> Any:

@@ -21,6 +21,7 @@ import numpy as np
 from stimplan.plan import REFERENCE_POWER_MW
 
 __all__ = [
+    "EXPORT_KEY",
     "LAYER_NAMES",
     "PLAN_KEY",
     "RESULT_KEY",
@@ -40,18 +41,21 @@ __all__ = [
 PLAN_KEY = "stimplan_plan"
 #: Metadata key of the :class:`~stimplan_napari._compute.StimulusResult` behind a layer.
 RESULT_KEY = "stimplan_result"
+#: Metadata key of an export folder read back (its path; the manifest's figures beside it).
+EXPORT_KEY = "stimplan_export"
 
 #: Names of the layers the plugin makes (units in the names).
 LAYER_NAMES = {
     "target": "target (relative)",
     "phase": "SLM phase (rad, SLM plane)",
-    "irradiance": "retina irradiance (mW/mm^2)",
+    "irradiance": "retina irradiance (mW/mm²)",
     "implant": "implant pixels (µW delivered)",
     "outline": "implant pixels (outline)",
     "zero_order": "zero order",
-    "sequence": "sequence retina (mW/mm^2)",
+    "sequence": "sequence retina (mW/mm²)",
     "sequence_grey": "sequence SLM grey (SLM plane)",
     "export_grey": "export SLM grey (per frame)",
+    "export_retina": "export retina, predicted from its grey levels (mW/mm²)",
 }
 
 TWO_PI = 2.0 * np.pi
@@ -373,19 +377,24 @@ def plan_layers(plan) -> list[tuple]:
     return layers
 
 
-def export_layers(bundle) -> list[tuple]:
-    """Layers of an export folder read back: the grey levels sent to the SLM, per frame.
+def export_layers(bundle, replay=None) -> list[tuple]:
+    """Layers of an export folder read back: its predicted retina, the implant, the SLM grey.
 
     Parameters
     ----------
     bundle : ExportBundle
+    replay : ReplayedExport, optional
+        The export's grey levels predicted again on the retina
+        (:func:`stimplan.present.replay.replay_export`); without it only the
+        grey levels are shown.
 
     Returns
     -------
     list of tuple
-        One image ``(n_frames, rows, cols)`` in SLM µm with a frame axis
-        (dark pauses are zeros), or the hologram pages if the timeline is
-        empty.
+        The per-frame retina in retinal µm with a frame axis (dark pauses are
+        zeros) and the implant's outline when there is a replay, then the
+        grey levels ``(n_frames, rows, cols)`` in SLM µm (hidden when the
+        retina is shown, and last, so that the first view frames the retina).
     """
     grey = bundle.grey
     manifest = bundle.manifest
@@ -398,24 +407,56 @@ def export_layers(bundle) -> list[tuple]:
         data = grey
     top = float(grey.max()) if grey.size and grey.max() > 0 else 1.0
     plane = _slm_plane(rows, cols, pitch)
-    return [
+    meta = {
+        EXPORT_KEY: str(bundle.path),
+        "verdict": bundle.verdict,
+        "timeline": bundle.timeline,
+        "exposure": manifest.get("exposure"),
+        "title": manifest.get("title"),
+        "cautions": manifest.get("cautions"),
+    }
+    layers = []
+    if replay is not None and replay.predictions:
+        pages = [p.irradiance_mw_per_mm2 for p in replay.predictions]
+        peaks = [
+            float(pages[k].max()) * s
+            for k, s in zip(replay.frame_pages, replay.frame_scale, strict=True)
+            if k >= 0
+        ]
+        g = grid_placement(replay.predictions[0].grid)
+        layers.append(
+            (
+                frame_stack(pages, replay.frame_pages, replay.frame_scale),
+                {
+                    "name": LAYER_NAMES["export_retina"],
+                    "colormap": "inferno",
+                    "contrast_limits": (0.0, max(peaks, default=0.0) or 1.0),
+                    "metadata": meta,
+                    "scale": (1.0, *g["scale"]),
+                    "translate": (0.0, *g["translate"]),
+                    "units": ("dimensionless", "um", "um"),
+                    "axis_labels": ("frame", "-y", "x"),
+                },
+                "image",
+            )
+        )
+        if replay.spec.implant is not None:
+            layers.append(implant_shapes(replay.spec.implant))
+    layers.append(
         (
             data,
             {
                 "name": LAYER_NAMES["export_grey"],
                 "colormap": "gray",
                 "contrast_limits": (0.0, top),
+                "visible": not layers,
                 "scale": (1.0, *plane["scale"]),
                 "translate": (0.0, *plane["translate"]),
                 "units": ("dimensionless", "um", "um"),
                 "axis_labels": ("frame", "-y", "x"),
-                "metadata": {
-                    "stimplan_export": str(bundle.path),
-                    "verdict": bundle.verdict,
-                    "timeline": bundle.timeline,
-                    "cautions": manifest.get("cautions"),
-                },
+                "metadata": meta,
             },
             "image",
         )
-    ]
+    )
+    return layers

@@ -16,6 +16,8 @@ from stimplan.cautions import CAUTION_SHORT, CAUTIONS
 from stimplan.plan.evaluate import stimulus_exposures
 from stimplan.present.summary import plan_summary
 
+from ._layers import EXPORT_KEY
+
 __all__ = [
     "StimulusFigures",
     "Readout",
@@ -24,6 +26,7 @@ __all__ = [
     "readout_table",
     "TABLE_COLUMNS",
     "verdict_line",
+    "export_text",
     "plan_alerts",
     "announce",
     "announce_export",
@@ -248,6 +251,44 @@ def readout_text(r: Readout, *, stimuli: bool = True) -> str:
     lines.append("")
     lines.append("Caution: " + r.cautions)
     return "\n".join(lines)
+
+
+def export_text(md: dict) -> tuple[str, str]:
+    """An export's recorded figures as text (ending with the cautions) and its verdict line.
+
+    ``md`` is the metadata of an export's layer: the manifest's title,
+    verdict and exposure figures, as written when the export was made.
+    """
+    e = md.get("exposure") or {}
+    verdict = md.get("verdict", "unknown")
+    lines = [
+        f"export: {md.get('title') or md.get(EXPORT_KEY)}",
+        f"folder: {md.get(EXPORT_KEY)}",
+        "",
+    ]
+    if e:
+        lines.append("exposure of the whole sequence when it was exported:")
+        for rule, r in (e.get("rules") or {}).items():
+            mark = "  <- binding" if rule == e.get("binding_rule") else ""
+            lines.append(f"  {_RULE_NAMES.get(rule, rule)}: {_g(r.get('ratio'))}{mark}")
+        lines.append(f"standard: worst {_g(e.get('worst_ratio'))} of the limit")
+        if e.get("protocol"):
+            lines.append(f"protocol cap: worst {_g(e['protocol'].get('worst_ratio'))} of the cap")
+        if e.get("binding"):
+            lines.append(f"what binds: {e['binding']}")
+    else:
+        lines.append("nothing is lit in this export")
+    lines += [
+        "",
+        f"verdict: {verdict} the limit",
+        "",
+        "Caution: " + (md.get("cautions") or CAUTIONS),
+    ]
+    line = (
+        f"verdict: {str(verdict).upper()} the limit (recorded in the export); "
+        f"standard {_g(e.get('worst_ratio'))} of the limit. {CAUTION_SHORT}"
+    )
+    return "\n".join(lines), line
 
 
 def verdict_line(r: Readout) -> str:

@@ -11,8 +11,14 @@ from magicgui.widgets import Container, Label, Table, TextEdit
 
 from stimplan.cautions import CAUTIONS
 
-from ._layers import PLAN_KEY, RESULT_KEY
-from ._readout import readout_from_plan, readout_table, readout_text, verdict_line
+from ._layers import EXPORT_KEY, PLAN_KEY, RESULT_KEY
+from ._readout import (
+    export_text,
+    readout_from_plan,
+    readout_table,
+    readout_text,
+    verdict_line,
+)
 from ._widgets import wrapping
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -66,9 +72,22 @@ class ReadoutPanel(Container):
         self.table.native.resizeColumnsToContents()
         self.figures.value = readout_text(r, stimuli=False)
 
+    def show_export(self, md: dict) -> None:
+        """Show the figures an export folder's manifest recorded (no plan is at hand)."""
+        self.plan = md[EXPORT_KEY]
+        self.readout = None
+        text, verdict = export_text(md)
+        self.verdict.value = verdict
+        colour = "#e05050" if md.get("verdict") == "above" else "#50c050"
+        self.verdict.native.setStyleSheet(f"color: {colour}; font-weight: bold")
+        self.table.value = {"data": [], "index": [], "columns": list(readout_table(None)[0])}
+        self.figures.value = text
+
     def _take(self, layer) -> None:
         md = getattr(layer, "metadata", None) or {}
-        if PLAN_KEY in md and md[PLAN_KEY] is not self.plan:
+        if EXPORT_KEY in md and md[EXPORT_KEY] != self.plan:
+            self.show_export(md)
+        elif PLAN_KEY in md and md[PLAN_KEY] is not self.plan:
             self.show_plan(md[PLAN_KEY])
         elif RESULT_KEY in md and md[RESULT_KEY].plan is not self.plan:
             res = md[RESULT_KEY]
