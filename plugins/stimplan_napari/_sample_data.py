@@ -2,17 +2,23 @@
 
 ``demo_retina`` is one stimulus of the rat demo; the scenario samples plan a
 whole demo sequence (on an SLM of half the pixels, the same field sampled
-more coarsely, so that they open in seconds rather than half a minute).
+more coarsely). In a viewer the plan runs in a worker thread, with napari's
+progress bar: the sample opens at once with the implant's outline, and the
+planned layers follow when the plan is done, so the viewer never freezes.
 """
 
 from __future__ import annotations
+
+import napari
+from napari.qt.threading import create_worker
 
 from stimplan.holography import IftaSettings, design_hologram
 from stimplan.plan import plan_sequence
 from stimplan.scenarios import load_scenario, scenario_target
 
-from ._layers import grid_placement, plan_layers
+from ._layers import LAYER_NAMES, grid_placement, implant_shapes, plan_layers
 from ._readout import announce
+from ._widgets import frame_retina, put_layers
 
 __all__ = ["demo_retina", "demo_rat_grating_acuity", "demo_human_letter_acuity"]
 
@@ -28,13 +34,13 @@ def demo_retina() -> list[tuple]:
     return [
         (
             target.intensity,
-            {"name": "target (relative)", **grid_placement(target.grid)},
+            {"name": LAYER_NAMES["target"], **grid_placement(target.grid)},
             "image",
         ),
         (
             pred.irradiance_mw_per_mm2,
             {
-                "name": "retina irradiance (mW/mm^2)",
+                "name": LAYER_NAMES["irradiance"],
                 "colormap": "inferno",
                 "contrast_limits": (0.0, top),
                 **grid_placement(pred.grid),
@@ -44,11 +50,31 @@ def demo_retina() -> list[tuple]:
     ]
 
 
-def _scenario(name: str) -> list[tuple]:
+#: Planning workers still running (kept so that they are not collected mid-plan).
+_RUNNING: set = set()
 
-    plan = plan_sequence(load_scenario(name, quick=True), progress=True)
-    announce(plan)
-    return plan_layers(plan)
+
+def _scenario(name: str) -> list[tuple]:
+    spec = load_scenario(name, quick=True)
+    viewer = napari.current_viewer()
+    if viewer is None:  # no viewer to add layers to later: plan here
+        plan = plan_sequence(spec, progress=True)
+        announce(plan)
+        return plan_layers(plan)
+    worker = create_worker(
+        plan_sequence, spec, progress=False, _progress={"desc": f"stimplan: planning {name}"}
+    )
+
+    def done(plan) -> None:
+        frame_retina(viewer, put_layers(viewer, plan_layers(plan)))
+        announce(plan)
+
+    worker.returned.connect(done)
+    worker.finished.connect(lambda: _RUNNING.discard(worker))
+    _RUNNING.add(worker)
+    worker.start()
+    # at once: the implant's outline (the planned layers follow)
+    return [implant_shapes(spec.implant)] if spec.implant is not None else []
 
 
 def demo_rat_grating_acuity() -> list[tuple]:
