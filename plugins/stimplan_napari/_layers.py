@@ -293,6 +293,16 @@ def stimulus_layers(result) -> list[tuple]:
     return layers
 
 
+def frame_axes(placement: dict[str, Any]) -> dict[str, Any]:
+    """A 2-D placement (``grid_placement``, ``slm_placement``) with a frame axis in front."""
+    return {
+        "scale": (1.0, *placement["scale"]),
+        "translate": (0.0, *placement["translate"]),
+        "units": ("dimensionless", "um", "um"),
+        "axis_labels": ("frame", "-y", "x"),
+    }
+
+
 def plan_frame_maps(plan):
     """Lazy per-frame retinal irradiance of a plan, mW/mm² (dark pauses are zeros).
 
@@ -347,10 +357,7 @@ def plan_layers(plan) -> list[tuple]:
                 "colormap": "inferno",
                 "contrast_limits": (0.0, peak),
                 "metadata": meta,
-                "scale": (1.0, *g["scale"]),
-                "translate": (0.0, *g["translate"]),
-                "units": ("dimensionless", "um", "um"),
-                "axis_labels": ("frame", "-y", "x"),
+                **frame_axes(g),
             },
             "image",
         ),
@@ -366,10 +373,7 @@ def plan_layers(plan) -> list[tuple]:
                 "colormap": "gray",
                 "contrast_limits": (0.0, grey_top),
                 "visible": False,
-                "scale": (1.0, *slm["scale"]),
-                "translate": (0.0, *slm["translate"]),
-                "units": ("dimensionless", "um", "um"),
-                "axis_labels": ("frame", "-y", "x"),
+                **frame_axes(slm),
             },
             "image",
         )
@@ -432,10 +436,7 @@ def export_layers(bundle, replay=None) -> list[tuple]:
                     "colormap": "inferno",
                     "contrast_limits": (0.0, max(peaks, default=0.0) or 1.0),
                     "metadata": meta,
-                    "scale": (1.0, *g["scale"]),
-                    "translate": (0.0, *g["translate"]),
-                    "units": ("dimensionless", "um", "um"),
-                    "axis_labels": ("frame", "-y", "x"),
+                    **frame_axes(g),
                 },
                 "image",
             )
@@ -450,10 +451,7 @@ def export_layers(bundle, replay=None) -> list[tuple]:
                 "colormap": "gray",
                 "contrast_limits": (0.0, top),
                 "visible": not layers,
-                "scale": (1.0, *plane["scale"]),
-                "translate": (0.0, *plane["translate"]),
-                "units": ("dimensionless", "um", "um"),
-                "axis_labels": ("frame", "-y", "x"),
+                **frame_axes(plane),
                 "metadata": meta,
             },
             "image",

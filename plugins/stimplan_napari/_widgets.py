@@ -298,6 +298,13 @@ LOGMAR_LIMITS = (-0.5, 3.0)
 _ABOVE_ZERO = 0.01
 
 
+def _ranged_spin(label: str, quantity: str, value: float) -> FloatSpinBox:
+    """A spin box over a quantity's plausibility range (:data:`stimplan.ranges.RANGES`)."""
+    r = RANGES[quantity]
+    lo = r.lo + _ABOVE_ZERO if r.lo_open else r.lo
+    return FloatSpinBox(label=label, min=lo, max=r.hi, step=0.1, value=value)
+
+
 def _spin_limits(name: str) -> tuple[float, float]:
     """A parameter's spin-box limits from the core's plausibility ranges
     (:data:`stimplan.ranges.RANGES`): positions and angles may be negative, sizes
@@ -340,23 +347,13 @@ class StimulusPanel(Container):
         self.optics_file = FileEdit(label="optics file", mode="r", filter="*.toml", visible=False)
         self.slm_pixels = SpinBox(label="SLM px (0: as given)", min=0, max=8192, step=64, value=0)
         self.power_by = ComboBox(label="power by", choices=POWER_BY, value=POWER_BY[0])
-        irr = RANGES["irradiance_mw_per_mm2"]
-        self.irradiance = FloatSpinBox(
-            label="ON-pixel irradiance (mW/mm²)",
-            min=irr.lo + _ABOVE_ZERO,
-            max=irr.hi,
-            step=0.1,
-            value=DEFAULT_IRRADIANCE_MW_PER_MM2,
+        self.irradiance = _ranged_spin(
+            "ON-pixel irradiance (mW/mm²)",
+            "irradiance_mw_per_mm2",
+            DEFAULT_IRRADIANCE_MW_PER_MM2,
         )
-        laser = RANGES["laser_power_mw"]
-        self.laser_power_mw = FloatSpinBox(
-            label="laser power (mW)",
-            min=laser.lo + _ABOVE_ZERO,
-            max=laser.hi,
-            step=0.1,
-            value=1.0,
-            visible=False,
-        )
+        self.laser_power_mw = _ranged_spin("laser power (mW)", "laser_power_mw", 1.0)
+        self.laser_power_mw.visible = False
         self.implant = ComboBox(
             label="implant", choices=[SOURCE_IMPLANT, *implant_names(), NO_IMPLANT]
         )
