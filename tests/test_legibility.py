@@ -49,3 +49,32 @@ def test_gratings_at_the_sampling_limit(period_um, resolvable, warned):
     leg = legibility(Grating(period_um=period_um), 55.0)
     assert leg.resolvable is resolvable
     assert bool(leg.warnings) is warned
+
+
+def test_a_grating_whose_bars_average_out_in_every_cell_is_not_rendered():
+    # 10 µm bars (period 20 µm) on 100 µm square cells: five periods per cell, so every
+    # cell's mean is 1/2 for any phase (closed form) and every pixel is ON (threshold
+    # 0.4) with or without the half-period shift: the bars have no ON/OFF contrast.
+    from stimplan.implant import Implant
+    from stimplan.legibility import feature_rendered
+
+    square = Implant(
+        pitch_um=100.0, layout="square", outline="square", width_um=600.0, active_fraction=0.5
+    )
+    assert feature_rendered(Grating(period_um=20.0), square, threshold=0.4) is False
+    leg = legibility(Grating(period_um=20.0), 100.0, implant=square, threshold=0.4)
+    assert leg.rendered is False and any("no contrast" in w for w in leg.warnings)
+    # 200 µm bars cover whole cells: the shifted grating turns other pixels ON
+    assert feature_rendered(Grating(period_um=400.0), square, threshold=0.4) is True
+
+
+def test_a_large_landolt_gap_is_rendered_on_the_clinical_array():
+    # logMAR 1.9: a 381 µm gap (Bailey & Lovie 1976; ISO 8596; 288 µm/deg, Drasdo &
+    # Fowler 1974) spans more than three 100 µm pixels: the ring with the gap turns
+    # pixels OFF that the closed ring turns ON.
+    from stimplan.implant import implant_preset
+    from stimplan.legibility import feature_rendered
+
+    ring = LandoltRing(height_um=5 * 10**1.9 / 60 * 288.0)
+    assert feature_rendered(ring, implant_preset("human_100um")) is True
+    assert feature_rendered(Flash(), implant_preset("human_100um")) is None

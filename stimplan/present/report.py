@@ -434,7 +434,17 @@ def render_report(plan) -> str:
                 (
                     "finest detail against the pixel pitch (sampling limit)",
                     f"{row['finest_detail_um']:.3g} µm: "
-                    + ("resolvable" if row["resolvable"] else "NOT resolvable"),
+                    + ("resolvable" if row["resolvable"] else "NOT resolvable")
+                    + (
+                        ""
+                        if row["rendered"] is None
+                        else "; on the array the feature is "
+                        + (
+                            "rendered (it changes which pixels are ON)"
+                            if row["rendered"]
+                            else "NOT rendered (no ON/OFF contrast)"
+                        )
+                    ),
                 )
             )
         if row["light_budget"] is not None:

@@ -34,7 +34,13 @@ def stimulus_rows(plan) -> list[dict]:
         leg = (
             None
             if stim is None or implant is None
-            else legibility(stim, implant.pitch_um, name=names[0])
+            else legibility(
+                stim,
+                implant.pitch_um,
+                name=names[0],
+                implant=implant,
+                threshold=plan.spec.on_threshold,
+            )
         )
         rows.append(
             {
@@ -61,6 +67,7 @@ def stimulus_rows(plan) -> list[dict]:
                 "verdict": None if exp is None else exp.verdict,
                 "finest_detail_um": None if leg is None else leg.detail_um,
                 "resolvable": None if leg is None else leg.resolvable,
+                "rendered": None if leg is None else leg.rendered,
                 "warnings": [] if leg is None else list(leg.warnings),
             }
         )
