@@ -52,7 +52,23 @@ def _load_and_plan(args: argparse.Namespace, *, quiet: bool = False):
     spec = load_sequence(args.file)
     gb = args.max_memory_gb
     check_memory(spec, limit_bytes=None if gb is None else gb * 2**30)
-    return plan_sequence(spec, progress=not (quiet or args.quiet))
+    return plan_sequence(spec, progress=not (quiet or args.quiet), scheduler=args.scheduler)
+
+
+def _scheduler(text: str) -> str:
+    """``--scheduler``: a local scheduler's name or a dask scheduler's address."""
+    if text in ("serial", "threads") or text.startswith(("tcp://", "tls://", "inproc://")):
+        return text
+    raise argparse.ArgumentTypeError(
+        f"'serial', 'threads' or a dask scheduler address (tcp://host:port), not {text!r}"
+    )
+
+
+def _print_timings(plan, extra: dict | None = None) -> None:
+    """``--verbose``: where the time went, stage by stage, on stderr."""
+    timings = {**plan.timings_s, **(extra or {})}
+    parts = [f"{stage} {seconds:.2f} s" for stage, seconds in timings.items()]
+    print("timings: " + ", ".join(parts), file=sys.stderr)
 
 
 def _memory_gb(text: str) -> float:
@@ -77,6 +93,21 @@ def _planning_options(p: argparse.ArgumentParser) -> None:
         help="refuse a plan whose memory estimate is above this "
         "(default: 80%% of the available memory)",
     )
+    p.add_argument(
+        "--scheduler",
+        type=_scheduler,
+        metavar="ADDRESS",
+        default=None,
+        help="where the distinct holograms are computed: 'threads' (the default, this "
+        "machine's cores), 'serial', or a dask.distributed scheduler address "
+        "(tcp://host:port) whose workers have stimplan installed",
+    )
+    p.add_argument(
+        "--verbose",
+        action="store_true",
+        help="print the time of each stage (holograms, predictions, readouts, exposure, "
+        "export) on stderr",
+    )
 
 
 # -- commands -------------------------------------------------------------------------
@@ -94,11 +125,13 @@ def _cmd_check(args: argparse.Namespace) -> int:
             print(json.dumps(plan_summary(plan), indent=1))
         else:
             print_table(plan)
+        if args.verbose:
+            _print_timings(plan)
     return EXIT_OK
 
 
 def _cmd_export(args: argparse.Namespace) -> int:
-    from .present.export import check_export_target, export_plan
+    from .present.export import check_export_target, export_plan, load_export
 
     # refuse a target that may not be written before any computing
     check_export_target(args.output, force=args.force, keep=(args.file,))
@@ -111,6 +144,8 @@ def _cmd_export(args: argparse.Namespace) -> int:
             acknowledge_reason=args.acknowledge,
         )
         print_table(plan)
+        if args.verbose:
+            _print_timings(plan, load_export(out, verify=False).manifest["timings_s"])
     print(f"export written to {out}", file=sys.stderr)
     return EXIT_OK
 
@@ -135,6 +170,8 @@ def _cmd_report(args: argparse.Namespace) -> int:
     with _load_and_plan(args) as plan:
         out = write_report(plan, args.output, force=args.force)
         print_table(plan)
+        if args.verbose:
+            _print_timings(plan)
     print(f"report written to {out}", file=sys.stderr)
     return EXIT_OK
 

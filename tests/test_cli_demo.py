@@ -336,3 +336,25 @@ def test_check_flags_a_landolt_c_finer_than_the_clinical_array(tmp_path, capsys)
     assert rows["ring_11"]["resolvable"] is False and rows["ring_11"]["warnings"]
     assert rows["ring_11"]["finest_detail_um"] == pytest.approx(10**1.1 / 60 * 288.0, rel=1e-6)
     assert rows["ring_19"]["resolvable"] is True and not rows["ring_19"]["warnings"]
+
+
+def test_verbose_prints_the_time_of_each_stage_and_the_manifest_records_it(seq, tmp_path, capsys):
+    # common practice: a user sees where the time goes
+    assert main(["check", str(seq), "--quiet", "--verbose"]) == 0
+    err = capsys.readouterr().err
+    line = next(t for t in err.splitlines() if t.startswith("timings: "))
+    for stage in ("holograms", "predictions", "readouts", "exposure"):
+        assert f"{stage} " in line
+    out = tmp_path / "exp"
+    assert main(["export", str(seq), "-o", str(out), "--quiet", "--verbose"]) == 0
+    assert "export " in capsys.readouterr().err
+    timings = json.loads((out / "manifest.json").read_text())["timings_s"]
+    assert {"holograms", "predictions", "readouts", "exposure", "export"} <= set(timings)
+    assert all(v >= 0 for v in timings.values())
+
+
+def test_a_scheduler_option_that_is_no_address_is_a_usage_error(seq, capsys):
+    with pytest.raises(SystemExit) as err:
+        main(["check", str(seq), "--scheduler", "cluster-one"])
+    assert err.value.code == 1
+    assert "tcp://host:port" in capsys.readouterr().err

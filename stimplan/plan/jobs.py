@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+import time
 from dataclasses import dataclass, replace
 
 import numpy as np
@@ -91,10 +92,12 @@ def _translated(
 
 def _evaluate(name, stim, index, spec, system, holo, workers, design=None) -> StimulusPlan:
     """Prediction, metrics, mask baseline and implant readout of one hologram (at 1 mW)."""
+    t0 = time.perf_counter()
     grid = system.design_grid()
     design = stim.render(grid) if design is None else design
     lit = holo.target.region_on(system.prediction_grid(spec.oversample), "lit")
     pred = holo.predict(system, oversample=spec.oversample, workers=workers, signal_region=lit)
+    t1 = time.perf_counter()
     metrics = pattern_metrics(pred, holo.target, lit=lit)
     del lit
     pg = pred.grid
@@ -131,6 +134,7 @@ def _evaluate(name, stim, index, spec, system, holo, workers, design=None) -> St
                     eye_transmission=system.eye.transmission,
                     field_area_mm2=mp.field_area_mm2,
                 )
+    t2 = time.perf_counter()
     acc = pred.account
     slm = system.slm
     budget = light_budget(
@@ -159,6 +163,7 @@ def _evaluate(name, stim, index, spec, system, holo, workers, design=None) -> St
         readout=readout,
         gain=gain,
         budget=budget,
+        timings_s={"predictions": t1 - t0, "readouts": t2 - t1},
     )
 
 
@@ -278,6 +283,14 @@ def plan_jobs(
     return jobs
 
 
+def timed(sp: StimulusPlan, start: float) -> StimulusPlan:
+    """``sp`` with the time of its hologram design (from ``start``, less its evaluation)."""
+    total = time.perf_counter() - start
+    spent = sum(sp.timings_s.values())
+    sp.timings_s = {"holograms": max(total - spent, 0.0), **sp.timings_s}
+    return sp
+
+
 def task_function(job: Job, index: int, spec, system, tick, *, spool: str | None = None):
     stim = spec.stimuli[job.names[0]]
     name = job.names[0]
@@ -290,24 +303,27 @@ def task_function(job: Job, index: int, spec, system, tick, *, spool: str | None
     if job.kind == "fresh":
 
         def run(*, workers):
+            t = time.perf_counter()
             design = stim.render(system.design_grid())
             holo = _design(stim, spec, system, tick, workers, design=design)
-            return evaluate(name, stim, index, spec, system, holo, workers, design)
+            return timed(evaluate(name, stim, index, spec, system, holo, workers, design), t)
 
     elif job.kind == "translate":
 
         def run(base, *, workers):
+            t = time.perf_counter()
             design = stim.render(system.design_grid())
             holo = _translated(base.hologram, stim, spec, system, job.shift_rc, base.name, design)
-            return evaluate(name, stim, index, spec, system, holo, workers, design)
+            return timed(evaluate(name, stim, index, spec, system, holo, workers, design), t)
 
     else:
 
         def run(base, *, workers):
+            t = time.perf_counter()
             init = _initial_from(base.hologram, job.shift_rc)
             its = max(10, spec.ifta.iterations // 2)
             design = stim.render(system.design_grid())
             holo = _design(stim, spec, system, tick, workers, init, its, design)
-            return evaluate(name, stim, index, spec, system, holo, workers, design)
+            return timed(evaluate(name, stim, index, spec, system, holo, workers, design), t)
 
     return run

@@ -51,6 +51,9 @@ class StimulusPlan:
         coverage (None without ON pixels).
     budget : LightBudget or None
         Where the light goes at 1 mW on the SLM, laser to ON photodiodes.
+    timings_s : dict
+        Seconds spent on this hologram's design (``holograms``), prediction
+        (``predictions``) and readouts with the mask baseline (``readouts``).
     grid : RetinalGrid
         The prediction grid.
 
@@ -77,6 +80,7 @@ class StimulusPlan:
         readout: object | None = None,
         gain: GainFactors | None = None,
         budget: LightBudget | None = None,
+        timings_s: dict | None = None,
     ) -> None:
         self.name = name
         self.hologram_index = hologram_index
@@ -95,6 +99,7 @@ class StimulusPlan:
         self.readout = readout
         self.gain = gain
         self.budget = budget
+        self.timings_s = dict(timings_s or {})
 
     target = property(lambda self: spooled_value(self._parts["target"]), doc="The Target.")
     hologram = property(lambda self: spooled_value(self._parts["hologram"]), doc="The Hologram.")

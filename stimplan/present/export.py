@@ -27,6 +27,7 @@ import io
 import json
 import math
 import os
+import time
 from collections.abc import Iterable, Iterator
 from dataclasses import dataclass
 from pathlib import Path
@@ -317,6 +318,7 @@ def export_plan(
             "user": _user(),
             "time_utc": _dt.datetime.now(_dt.UTC).isoformat(timespec="seconds"),
         }
+    t_export = time.perf_counter()
     with atomic_folder(output, force=force) as tmp:
         files = _write_stack(tmp, plan, stack_format)
         if fail_after == "stack":
@@ -348,6 +350,8 @@ def export_plan(
             "mask_exposure": None if mask is None else mask.as_dict(),
             "verdict": plan.verdict,
             "acknowledgement": ack,
+            # seconds per stage of the plan, and of writing this folder
+            "timings_s": {**plan.timings_s, "export": time.perf_counter() - t_export},
             "cautions": CAUTIONS,
         }
         (tmp / "manifest.json").write_text(json.dumps(json_safe(manifest), indent=1))
