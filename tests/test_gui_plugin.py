@@ -145,6 +145,13 @@ def test_stimulus_panel_computes_layers_in_micrometres(make_napari_viewer, qtbot
     qtbot.wait(50)
     shot = viewer.screenshot(flash=False)
     assert shot.ndim == 3 and np.ptp(shot[..., :3]) > 0  # not blank
+    # the first view frames the implant: its drawn photodiodes span most of the canvas's
+    # narrower side (a view of the whole SLM plane would leave the implant a speck)
+    canvas = viewer.screenshot(canvas_only=True, flash=False)[..., :3]
+    body = canvas[: int(canvas.shape[0] * 0.9)]  # above the scale bar
+    rows, cols = np.nonzero(body.max(axis=-1) > 40)
+    span = max(np.ptp(rows) / canvas.shape[0], np.ptp(cols) / canvas.shape[1])
+    assert span > 0.5, span
 
 
 def test_stimulus_panel_uses_a_sequence_files_optics(make_napari_viewer, qtbot, tmp_path):

@@ -292,3 +292,16 @@ def test_an_export_predicted_again_gives_the_planned_retina(plan, tmp_path):
     assert [k for k in replay.frame_pages if k >= 0] == [f.hologram_index for f in lit]
     scales = [s for s in replay.frame_scale if s > 0]
     assert scales == pytest.approx([f.power_mw for f in lit], rel=1e-5)
+
+
+def test_an_implant_aware_stimulus_that_turns_no_pixel_on_names_its_key():
+    # common practice: the error names the file's key of the stimulus and the way out
+    from stimplan.errors import ConfigError
+    from stimplan.sequence import parse_sequence
+
+    text = small_sequence().replace('kind = "grating"\nbar_width_px = 2', 'kind = "spot"', 1)
+    text = text.replace("[stimuli.spot]", "diameter_um = 5\n\n[stimuli.spot]", 1)
+    with pytest.raises(ConfigError) as err:
+        plan_sequence(parse_sequence(text), progress=False)
+    assert err.value.field == "stimuli.bars"
+    assert "implant_aware = false" in str(err.value)

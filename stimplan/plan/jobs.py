@@ -10,6 +10,7 @@ import numpy as np
 
 from ..budget import light_budget, retina_split_mw, slm_fraction
 from ..comparison import pixel_figures, project_mask_on_implant
+from ..errors import ConfigError
 from ..gain import gain_factors
 from ..holography import Hologram, add_phase_ramp, design_hologram
 from ..holography.design import display_levels
@@ -34,10 +35,19 @@ from .spool import (
 __all__ = ["Job", "plan_jobs", "task_function"]
 
 
-def _build_target(stim, spec, grid, design=None) -> Target:
+def _build_target(stim, spec, grid, design=None, *, name: str = "stimulus") -> Target:
     design = stim.render(grid) if design is None else design
     if spec.implant is not None and spec.implant_aware:
-        return implant_target(design, grid, spec.implant, threshold=spec.on_threshold)
+        try:
+            return implant_target(design, grid, spec.implant, threshold=spec.on_threshold)
+        except ConfigError as exc:  # name the stimulus of the file, and the way out
+            raise ConfigError(
+                f"stimuli.{name}",
+                exc.value,
+                exc.allowed,
+                "the implant-aware target lights ON pixels only: make the stimulus larger "
+                "or brighter, or set hologram.implant_aware = false",
+            ) from None
     return Target.from_intensity(design, grid, name="image-domain")
 
 
@@ -49,7 +59,16 @@ def _settings(spec):
 
 
 def _design(
-    stim, spec, system, progress, workers, initial_phase_rad=None, iterations=None, design=None
+    stim,
+    spec,
+    system,
+    progress,
+    workers,
+    initial_phase_rad=None,
+    iterations=None,
+    design=None,
+    *,
+    name: str = "stimulus",
 ):
     grid = system.design_grid()
     st = _settings(spec)
@@ -57,7 +76,7 @@ def _design(
         st = replace(
             st, iterations=iterations, quantized_iterations=min(st.quantized_iterations, iterations)
         )
-    target = _build_target(stim, spec, grid, design)
+    target = _build_target(stim, spec, grid, design, name=name)
     return design_hologram(
         target,
         system,
@@ -70,12 +89,20 @@ def _design(
 
 
 def _translated(
-    base: Hologram, stim, spec, system, shift_rc, base_name: str, design=None
+    base: Hologram,
+    stim,
+    spec,
+    system,
+    shift_rc,
+    base_name: str,
+    design=None,
+    *,
+    stim_name="stimulus",
 ) -> Hologram:
     """The base hologram moved by ``shift_rc`` design samples with a linear phase ramp."""
     grid = system.design_grid()
     phase = add_phase_ramp(base.phase_rad, shift_rc[0], shift_rc[1])
-    target = _build_target(stim, spec, grid, design)
+    target = _build_target(stim, spec, grid, design, name=stim_name)
     rows, cols = base.offset_samples
     if rows or cols:
         target = target.shifted(rows, cols)
@@ -305,7 +332,7 @@ def task_function(job: Job, index: int, spec, system, tick, *, spool: str | None
         def run(*, workers):
             t = time.perf_counter()
             design = stim.render(system.design_grid())
-            holo = _design(stim, spec, system, tick, workers, design=design)
+            holo = _design(stim, spec, system, tick, workers, design=design, name=name)
             return timed(evaluate(name, stim, index, spec, system, holo, workers, design), t)
 
     elif job.kind == "translate":
@@ -313,7 +340,9 @@ def task_function(job: Job, index: int, spec, system, tick, *, spool: str | None
         def run(base, *, workers):
             t = time.perf_counter()
             design = stim.render(system.design_grid())
-            holo = _translated(base.hologram, stim, spec, system, job.shift_rc, base.name, design)
+            holo = _translated(
+                base.hologram, stim, spec, system, job.shift_rc, base.name, design, stim_name=name
+            )
             return timed(evaluate(name, stim, index, spec, system, holo, workers, design), t)
 
     else:
@@ -323,7 +352,7 @@ def task_function(job: Job, index: int, spec, system, tick, *, spool: str | None
             init = _initial_from(base.hologram, job.shift_rc)
             its = max(10, spec.ifta.iterations // 2)
             design = stim.render(system.design_grid())
-            holo = _design(stim, spec, system, tick, workers, init, its, design)
+            holo = _design(stim, spec, system, tick, workers, init, its, design, name=name)
             return timed(evaluate(name, stim, index, spec, system, holo, workers, design), t)
 
     return run
