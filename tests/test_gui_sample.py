@@ -21,10 +21,19 @@ def test_sample_data_opens_with_physical_scale(make_napari_viewer):
 
 
 def test_a_scenario_sample_plans_in_a_worker_and_never_freezes_the_viewer(
-    make_napari_viewer, qtbot
+    make_napari_viewer, qtbot, monkeypatch
 ):
     # common practice (napari: long work off the GUI thread): the sample returns at
-    # once with the implant's outline; the planned sequence follows from a worker
+    # once with the implant's outline; the planned sequence follows from a worker.
+    # The scenario is swapped for the small test session (the mechanism is the same).
+    from stimplan.sequence import parse_sequence
+    from stimplan_napari import _sample_data
+
+    from .scenarios import gui_sequence
+
+    monkeypatch.setattr(
+        _sample_data, "load_scenario", lambda name, quick: parse_sequence(gui_sequence(1.0))
+    )
     viewer = make_napari_viewer(show=True)
     viewer.open_sample("stimplan", "rat_grating_acuity")
     assert [layer.name for layer in viewer.layers] == [LAYER_NAMES["outline"]]
