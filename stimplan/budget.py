@@ -60,7 +60,7 @@ __all__ = [
     "gaussian_fraction_on_aperture",
     "quantisation_efficiency",
     "light_budget",
-    "retina_split_mw",
+    "footprint_mw",
     "slm_fraction",
     "BUDGET_LABELS",
 ]
@@ -231,12 +231,11 @@ def light_budget(
     )
 
 
-def retina_split_mw(irradiance_mw_per_mm2: np.ndarray, sample_area_mm2: float, cells) -> tuple:
-    """``(retina_mw, footprint_mw)``: a map's power and its part on an implant's cells.
+def footprint_mw(irradiance_mw_per_mm2: np.ndarray, sample_area_mm2: float, cells) -> float:
+    """The power of a retinal map on an implant's cells (pixel cells and trenches), mW.
 
     ``cells`` is the implant's :class:`~stimplan.implant.raster.ImplantRaster`
     of region ``"cell"`` on the map's grid.
     """
     power = np.asarray(irradiance_mw_per_mm2, np.float64).reshape(-1) * sample_area_mm2
-    foot = float(np.asarray(cells.matrix @ power).sum())
-    return float(power.sum()), foot
+    return float(np.asarray(cells.matrix @ power).sum())

@@ -86,7 +86,8 @@ def planned():
 
 
 def test_each_stimulus_budget_sums_to_the_laser_power(planned):
-    # the rule: the entries sum to the laser power within 0.1 %
+    # common practice (energy conservation): the disjoint entries sum to the laser power,
+    # checked within 0.1 %
     plan, summary = planned
     for row, sp in zip(summary["stimuli"], plan.holograms, strict=True):
         b = row["light_budget"]

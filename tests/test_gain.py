@@ -81,7 +81,8 @@ def summary():
 
 
 def test_the_factors_of_each_stimulus_multiply_to_its_on_pixel_power_ratio(summary):
-    # the rule: the product is the hologram-over-mask ON-pixel power ratio within 1 %
+    # common practice: the three factors are defined to multiply to the hologram-over-mask
+    # ON-pixel power ratio; checked within 1 % against the two per-pixel readouts
     for row in summary["stimuli"]:
         f = row["gain_factors"]
         power = row["on_pixel_power_uw"]

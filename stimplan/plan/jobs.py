@@ -8,7 +8,7 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from ..budget import light_budget, retina_split_mw, slm_fraction
+from ..budget import footprint_mw, light_budget, slm_fraction
 from ..comparison import pixel_figures, project_mask_on_implant
 from ..errors import ConfigError
 from ..gain import gain_factors
@@ -144,7 +144,7 @@ def _evaluate(name, stim, index, spec, system, holo, workers, design=None) -> St
         on = states.on
         readout = spec.implant.readout(pred.irradiance_mw_per_mm2, pg, wavelength_nm=wl)
         cells = spec.implant.rasterize(pg, "cell", check_fit=False)
-        _, foot_mw = retina_split_mw(pred.irradiance_mw_per_mm2, pg.sample_area_mm2, cells)
+        foot_mw = footprint_mw(pred.irradiance_mw_per_mm2, pg.sample_area_mm2, cells)
         pd_mw = np.asarray(readout.power_uw, np.float64) * 1e-3
         on_mw, off_mw = float(pd_mw[states.on].sum()), float(pd_mw[~states.on].sum())
         mread = spec.implant.readout(mp.irradiance_mw_per_mm2, pg, wavelength_nm=wl)
