@@ -74,6 +74,12 @@ RANGES = MappingProxyType(
         ),
         "pupil_diameter_mm": PhysicalRange(0.05, 20.0, "no eye has a pupil outside 50 µm to 20 mm"),
         "implant_pitch_um": PhysicalRange(1.0, 5000.0, "implant pixels are tens to hundreds of µm"),
+        "stimulation_threshold_mw_per_mm2": PhysicalRange(
+            1e-4,
+            1e3,
+            "published photovoltaic thresholds lie between hundredths and tens of mW/mm²; "
+            "1 W/mm² on the retina is beyond any exposure limit",
+        ),
         "retinal_length_um": PhysicalRange(0.0, 1e5, _NO_RETINA, lo_open=True),
         "retinal_position_um": PhysicalRange(-1e5, 1e5, _NO_RETINA),
         "angle_deg": PhysicalRange(

@@ -23,6 +23,11 @@ Membership
     ``diameter_um`` corner to corner; ``rings=k`` selects the centred
     hexagonal patch of ``3k(k+1)+1`` pixels (corner to corner
     ``(2k+1) × pitch`` with centre inclusion).
+Threshold and view
+    An implant may carry a stimulation threshold range with its source
+    (:mod:`~stimplan.implant.threshold`); the implant's view of a stimulus
+    sets each pixel's photodiode irradiance against it
+    (:mod:`~stimplan.implant.view`).
 Rasterising
     The coverage of every grid sample by every active area is computed
     exactly (analytic intersection of each polygon or disc with each sample
@@ -51,6 +56,8 @@ from .geometry import (
 from .layout import Implant
 from .presets import IMPLANT_PRESETS, implant_names, implant_preset
 from .raster import ImplantRaster, PixelReadout
+from .threshold import StimulationThreshold, stimulation_threshold
+from .view import ImplantView, implant_view
 
 __all__ = [
     "Implant",
@@ -63,4 +70,8 @@ __all__ = [
     "centred_hexagonal_number",
     "polygon_quadrant_area",
     "disc_quadrant_area",
+    "StimulationThreshold",
+    "stimulation_threshold",
+    "ImplantView",
+    "implant_view",
 ]

@@ -10,6 +10,7 @@ from .. import validate
 from ..errors import ConfigError
 from .geometry import centred_hexagonal_number
 from .lattice import outline_half_extent_um
+from .threshold import check_threshold
 
 __all__ = [
     "check_fields",
@@ -203,6 +204,9 @@ def check_fields(implant: Any) -> None:
         "rotation_deg",
         validate.physical("implant.rotation_deg", implant.rotation_deg, "angle_deg"),
     )
+    pair, source = check_threshold(implant.threshold_mw_per_mm2, implant.threshold_source)
+    f(implant, "threshold_mw_per_mm2", pair)
+    f(implant, "threshold_source", source)
     if not isinstance(implant.name, str):
         raise ConfigError("implant.name", implant.name, "a string")
     check_size(implant)

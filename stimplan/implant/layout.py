@@ -73,6 +73,11 @@ class Implant:
         Counter-clockwise rotation of the array on the retina, degrees.
     name : str
         A label.
+    threshold_mw_per_mm2 : pair of float, optional
+        Stimulation threshold range ``(low, high)`` of photodiode irradiance, mW/mm²
+        (:mod:`stimplan.implant.threshold`); None when no source gives one.
+    threshold_source : str, optional
+        Where that range comes from.
 
     Notes
     -----
@@ -103,6 +108,8 @@ class Implant:
     center_y_um: float = 0.0
     rotation_deg: float = 0.0
     name: str = "custom"
+    threshold_mw_per_mm2: tuple[float, float] | None = None
+    threshold_source: str | None = None
 
     def __post_init__(self) -> None:
         check_fields(self)
@@ -159,7 +166,6 @@ class Implant:
     def _lattice(self) -> tuple[np.ndarray, np.ndarray]:
         return lattice_um(self)
 
-    # -- pixels ----------------------------------------------------------------------
     @property
     def n_pixels(self) -> int:
         """Number of pixels."""
@@ -213,7 +219,6 @@ class Implant:
         e = self.footprint_extent_um
         return e[1] - e[0]
 
-    # -- acuity --------------------------------------------------------------------
     def grating_acuity(self, eye: Eye | float) -> GratingAcuity:
         """Sampling-limited grating acuity (bar width = one pitch).
 
@@ -228,7 +233,6 @@ class Implant:
         """Sampling-limited grating acuity in cycles/deg, ``um_per_deg / (2 pitch)``."""
         return self.grating_acuity(eye).cycles_per_deg
 
-    # -- placement checks ------------------------------------------------------------
     def fits_in(self, grid: RetinalGrid) -> bool:
         """Whether every pixel cell lies inside the grid's field."""
         x0, x1, y0, y1 = grid.extent_um
@@ -248,7 +252,6 @@ class Implant:
                 "move, shrink or rotate the implant, or widen the field",
             )
 
-    # -- rasterising and readout -------------------------------------------------------
     def rasterize(
         self, grid: RetinalGrid, region: str = "active", *, check_fit: bool = True
     ) -> ImplantRaster:

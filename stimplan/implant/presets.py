@@ -9,6 +9,7 @@ from ..errors import ConfigError
 from .layout import (
     Implant,
 )
+from .threshold import MATHIESON_2012
 
 __all__ = ["IMPLANT_PRESETS", "implant_names", "implant_preset"]
 
@@ -17,6 +18,8 @@ IMPLANT_PRESETS: dict[str, dict[str, Any]] = {
     # Demo: a rat array about 1.2 mm across (11 rings: 397 pixels, 1265 µm corner to
     # corner) of 55 µm hexagonal pixels; 60 % active area and a 5 µm trench are demo
     # values. Pixel pitches of 100 to 20 µm have been built (Mathieson 2012; Ho 2019).
+    # Threshold: the range of Mathieson 2012, measured with 70 µm bipolar pixels in vitro
+    # (a published range for another pixel size; the source text says so).
     "rat_55um": dict(
         pitch_um=55.0,
         layout="hex",
@@ -26,12 +29,16 @@ IMPLANT_PRESETS: dict[str, dict[str, Any]] = {
         active_fraction=0.6,
         trench_um=5.0,
         name="rat_55um",
+        threshold_mw_per_mm2=MATHIESON_2012[0],
+        threshold_source=MATHIESON_2012[1],
     ),
     # The clinical array of Palanker et al. (2020): 2 × 2 mm, 378 hexagonal pixels of
     # 100 µm. Layout rule (ours; the source gives size, pitch and count only): a block
     # of 21 lattice rows of 18 pixels (21 × 18 = 378), rows 86.6 µm apart and every
     # other row shifted by half a pitch, which spans 1.85 × 1.85 mm and leaves a
     # 75 µm edge on each side of the 2 mm chip. Active fraction and trench are demo values.
+    # No threshold: none was found published for it (the 3 mW/mm² of the clinical trials,
+    # Wang et al. 2022, is an operating irradiance, not a threshold).
     "human_100um": dict(
         pitch_um=100.0,
         layout="hex",
@@ -62,7 +69,8 @@ def implant_preset(name: str, **overrides: Any) -> Implant:
         Any :class:`Implant` field, e.g. ``center_x_um=200.0``. Size fields
         replace the preset's sizing (``rings`` replaces ``diameter_um`` and
         vice versa); likewise ``active_diameter_um`` replaces
-        ``active_fraction``.
+        ``active_fraction``, and ``threshold_mw_per_mm2`` the preset's range
+        and its source.
 
     Returns
     -------
@@ -85,5 +93,7 @@ def implant_preset(name: str, **overrides: Any) -> Implant:
         params.pop("active_fraction", None)
     if "active_fraction" in overrides:
         params.pop("active_diameter_um", None)
+    if "threshold_mw_per_mm2" in overrides:  # a user's range does not take the preset's source
+        params.pop("threshold_source", None)
     params.update(overrides)
     return Implant(**params)

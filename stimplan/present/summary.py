@@ -11,12 +11,55 @@ from .. import __version__
 from ..baseline import MASK_PRESET_INFO
 from ..budget import BUDGET_LABELS
 from ..cautions import CAUTIONS
+from ..errors import ConfigError
+from ..implant import implant_view, stimulation_threshold
 from ..legibility import legibility
 from ..plan import REFERENCE_POWER_MW
 from ..plan.evaluate import mask_exposure, max_laser_power_mw, stimulus_exposures
 from .export import json_safe
 
-__all__ = ["stimulus_rows", "plan_summary", "print_table", "budget_text", "mask_entry"]
+__all__ = [
+    "stimulus_rows",
+    "plan_summary",
+    "print_table",
+    "budget_text",
+    "mask_entry",
+    "stimulus_view",
+    "view_entry",
+    "view_text",
+]
+
+
+def stimulus_view(plan, sp, power_mw: float):
+    """The implant's view of one stimulus at ``power_mw`` of laser power.
+
+    Returns
+    -------
+    ImplantView or None
+        None without an implant readout.
+
+    Raises
+    ------
+    ConfigError
+        When the implant has no threshold range (no sourced one, none given).
+    """
+    implant = plan.spec.implant
+    if implant is None or sp.readout is None or sp.on is None:
+        return None
+    threshold = stimulation_threshold(implant)
+    return implant_view(sp.readout, sp.on, threshold=threshold, scale=power_mw / REFERENCE_POWER_MW)
+
+
+def view_entry(plan, sp, power_mw: float) -> dict | None:
+    """The `check --json` entry of the implant's view (at the entry's laser power), or
+    the reason it is refused."""
+    if power_mw <= 0:
+        return None
+    try:
+        view = stimulus_view(plan, sp, power_mw)
+    except ConfigError as exc:
+        return {"threshold_mw_per_mm2": None, "refused": str(exc)}
+    return None if view is None else {"laser_power_mw": power_mw, **view.as_dict()}
 
 
 def stimulus_rows(plan) -> list[dict]:
@@ -69,6 +112,8 @@ def stimulus_rows(plan) -> list[dict]:
                 "resolvable": None if leg is None else leg.resolvable,
                 "rendered": None if leg is None else leg.rendered,
                 "warnings": [] if leg is None else list(leg.warnings),
+                # each pixel's photodiode irradiance against the implant's threshold range
+                "implant_view": view_entry(plan, sp, power),
             }
         )
     return rows
@@ -150,6 +195,21 @@ def budget_text(budget: dict) -> str:
     )
 
 
+def view_text(entry: dict | None) -> str:
+    """One line of the implant's view entry (its counts, or why there is none)."""
+    if entry is None:
+        return "none (no implant or no lit frame)"
+    if entry["threshold_mw_per_mm2"] is None:
+        return "refused: " + entry["refused"]
+    lo, hi = entry["threshold_mw_per_mm2"]
+    return (
+        f"{entry['on_below']} of {entry['on_pixels']} ON pixels under {hi:.3g} mW/mm² "
+        f"(may not stimulate), {entry['off_above']} of {entry['off_pixels']} OFF pixels over "
+        f"{lo:.3g} mW/mm² (may stimulate) at {entry['laser_power_mw']:.3g} mW; "
+        f"threshold from {entry['source']}"
+    )
+
+
 def _num(x):
     return float(x) if isinstance(x, str) else x
 
@@ -226,6 +286,8 @@ def print_table(plan, file=None) -> None:
     for r in s["stimuli"]:
         for w in r["warnings"]:
             print(f"legibility: {w}", file=file)
+    for r in s["stimuli"]:
+        print(f"implant's view, {r['name']}: {view_text(r['implant_view'])}", file=file)
     if e["edition"]:
         print(f"limits: {e['edition']}", file=file)
     print("CAUTION: " + CAUTIONS, file=file)

@@ -137,6 +137,8 @@ class ImplantTable(_Table):
     center_y_um: float | None = None
     rotation_deg: float | None = None
     name: str | None = None
+    threshold_mw_per_mm2: Any = None  # a pair [low, high]; each element checked with its index
+    threshold_source: str | None = None
 
 
 #: The keys of ``[hologram]`` that set the phase retrieval
