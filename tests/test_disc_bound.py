@@ -136,7 +136,7 @@ def test_an_empty_map_has_no_power():
 
 
 @pytest.mark.parametrize("name", ["speckle", "uniform"])
-@pytest.mark.parametrize("d_um", [9.0, 40.0, 150.0])
+@pytest.mark.parametrize("d_um", [9.0, 40.0, 150.0, 220.0])  # 220: a float32 kernel transform
 def test_the_fft_round_off_bound_covers_the_float32_transform(name, d_um):
     from scipy.signal import correlate
 

@@ -462,18 +462,24 @@ def assess_sequence(
 
     ladder = list(angles)
 
-    def measure(new: list[float]) -> None:
+    def measure(new: list[float], refine: bool = False) -> None:
         ds = [diam[a] for a in new]
-        found = sweep.maxima(ds)
+        found = sweep.maxima(ds, refine=refine)
         for j, a in enumerate(new):
             per_map[a] = {gi: found[gi][j] for gi in sweep.lit}
-        if len(sweep.lit) == 1 or not dose_max:
+        if len(sweep.lit) == 1:
             for a, m in zip(new, sweep.dose_maxima(ds, found), strict=True):
                 dose_max[a] = m
-        else:
-            # a disc energy never falls as the disc grows: the next starting angle above
-            # bounds the dose map's largest disc energy at an added angle
-            for a in new:
+            return
+        starting = [a for a in new if a in ladder]
+        if starting:
+            dmax = sweep.dose_maxima([diam[a] for a in starting], found, refine=refine)
+            for a, m in zip(starting, dmax, strict=True):
+                dose_max[a] = m
+        # a disc energy never falls as the disc grows: the next starting angle above
+        # bounds the dose map's largest disc energy at an added angle
+        for a in new:
+            if a not in ladder:
                 dose_max[a] = dose_max[min(b for b in ladder if b >= a)]
 
     lit_frames = np.flatnonzero(np.isin(group_of, sweep.lit) & (max_scale > 0))
@@ -484,22 +490,53 @@ def assess_sequence(
         at = per_map[powers_angle]
         return tl.rules(lambda gi: at[gi][2], limit_angle, dose_max[powers_angle][2])
 
+    def tight(a: float) -> bool:
+        # an added angle's dose bound is that of the starting angle above it
+        above = a if a in ladder else min(b for b in ladder if b >= a)
+        return sweep.is_tight(diam[a]) and sweep.dose_is_tight(diam[above])
+
     measure(angles)
     values = {a: virtual(a, a) for a in angles}
     bounds: dict[tuple[float, float], dict[str, RuleResult]] = {}
-    for _level in range(_MAX_LEVELS):
-        # branch and bound on the angle: split only the intervals whose bound exceeds
-        # the largest value evaluated so far by more than the tolerance
-        best = max(binding_rule(r).ratio for r in values.values())
+
+    def refine(todo: set[float]) -> None:
+        # the dose bound of an added angle comes from the starting angle above it
+        todo = todo | {min(b for b in ladder if b >= a) for a in todo if len(sweep.lit) > 1}
+        todo = {a for a in todo if not tight(a)}
+        if not todo:
+            return
+        measure(sorted(todo), refine=True)
+        for a in todo:
+            values[a] = virtual(a, a)
+        for k in [k for k in bounds if k[0] in todo or k[1] in todo]:
+            del bounds[k]
+
+    # every angle starts with cheap bounds (block sums); branch and bound refines an
+    # angle's maxima only where they could decide the result, and splits an interval
+    # only where its bound is loose with refined maxima at both ends
+    refine({max(angles, key=lambda a: binding_rule(values[a]).ratio)})
+    splits = 0
+    for _round in range(8 * _MAX_LEVELS):
+        best = max((binding_rule(values[a]).ratio for a in angles if tight(a)), default=0.0)
+        todo = {
+            a for a in angles if not tight(a) and binding_rule(values[a]).ratio > (1 + tol) * best
+        }
         new = []
         for a, b in zip(angles[:-1], angles[1:], strict=True):
             if (a, b) not in bounds:
                 bounds[(a, b)] = virtual(b, a)
-            top = binding_rule(bounds[(a, b)]).ratio
-            if top > (1 + tol) * best and b / a > 1.0 + 1e-4:
+            if binding_rule(bounds[(a, b)]).ratio <= (1 + tol) * best:
+                continue
+            if not tight(b):
+                todo.add(b)
+            elif b / a > 1.0 + 1e-4 and splits < _MAX_LEVELS:
                 new.append(math.sqrt(a * b))
+        if todo:
+            refine(todo)
+            continue
         if not new:
             break
+        splits += 1
         for a in new:
             diam[a] = retinal_image_diameter_um(a, eye)
         measure(new)

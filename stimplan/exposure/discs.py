@@ -77,6 +77,11 @@ def point_area_mm2(diameter_um: float) -> float:
     return math.pi * (diameter_um * 1e-3) ** 2 / 4.0
 
 
+#: Kernels with more cells than this are transformed in float32 (their 2-norm is then
+#: small beside their sum, so the added round-off stays far below the tolerances).
+_SINGLE_KERNEL_CELLS = 10_000
+
+
 class DiscIntegrator:
     """Disc power maps on one grid, zero-padded as much as each disc needs.
 
@@ -95,6 +100,7 @@ class DiscIntegrator:
         )
         self._kernels: dict[float, tuple[np.ndarray, tuple[int, int]]] = {}
         self._norms: dict[float, tuple[float, float]] = {}
+        self._single: dict[float, bool] = {}
 
     def _kernel_half(self, diameter_um: float) -> tuple[int, int]:
         g = self.grid
@@ -134,11 +140,14 @@ class DiscIntegrator:
             g = self.grid
             hy, hx = self._kernel_half(diameter_um)
             kernel = disc_kernel(diameter_um, g.pitch_x_um, g.pitch_y_um, hy, hx)
-            # the kernel's transform in float64, rounded once to complex64
+            # a large kernel is transformed in float32 (its round-off, relative to its
+            # small 2-norm, is in error_bound_mw); a small one in float64, rounded once
             k64 = kernel.astype(np.float64)
-            spec = sfft.rfft2(k64, s=shape, workers=-1).astype(np.complex64)
-            hit = (spec, kernel.shape)
+            single = kernel.size > _SINGLE_KERNEL_CELLS
+            spec = sfft.rfft2(kernel if single else k64, s=shape, workers=-1)
+            hit = (spec.astype(np.complex64, copy=False), kernel.shape)
             self._kernels[diameter_um] = hit
+            self._single[diameter_um] = single
             self._norms[diameter_um] = (float(k64.sum()), float(np.sqrt(np.sum(k64 * k64))))
         return hit
 
@@ -150,8 +159,12 @@ class DiscIntegrator:
         ``eps = 5 log2(n) u`` [1]_ (``u = 2^-24``). With the map ``x`` and the
         kernel ``k``: the map's transform and the inverse transform each add at
         most ``eps |x|_2 |k|_1``, the product ``2 u |x|_2 |k|_1``, and the
-        kernel's transform (float64, rounded once) ``u |x|_1 |k|_2``; one value's
-        error is at most the 2-norm of the error. A factor of 2 is added.
+        kernel's transform ``u |x|_1 |k|_2`` when it is done in float64 and
+        rounded once, ``(eps + u) |x|_1 |k|_2`` when it is done in float32 (for
+        kernels of more than :data:`_SINGLE_KERNEL_CELLS` cells; its spectrum's
+        error, times the map's spectrum of largest value ``|x|_1``, then back);
+        one value's error is at most the 2-norm of the error. A factor of 2 is
+        added.
 
         References
         ----------
@@ -165,7 +178,8 @@ class DiscIntegrator:
         k1, k2 = self._norms[diameter_um]
         u = 2.0**-24
         eps = 5.0 * math.log2(shape[0] * shape[1]) * u
-        return 2.0 * ((2.0 * eps + 2.0 * u) * map_l2 * k1 + u * map_l1 * k2)
+        uk = (eps + u) if self._single[diameter_um] else u
+        return 2.0 * ((2.0 * eps + 2.0 * u) * map_l2 * k1 + uk * map_l1 * k2)
 
     def power_map_mw(
         self,

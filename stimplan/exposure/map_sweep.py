@@ -7,6 +7,7 @@ centre (:mod:`stimplan.exposure.map_maxima`), sharing them through a cache.
 
 from __future__ import annotations
 
+import math
 from collections.abc import Sequence
 
 import numpy as np
@@ -14,32 +15,100 @@ import numpy as np
 from .disc_bound import PreparedMap
 from .discs import DiscIntegrator, peak_location, point_area_mm2
 from .frames import accumulate_map, load_map
-from .map_maxima import bound_between_samples, centre_slack_um, sums_at_samples
+from .map_maxima import (
+    CENTRE_TOLERANCE,
+    bound_between_samples,
+    centre_slack_um,
+    sums_at_samples,
+    whole_map_mw,
+)
+from .pooled import PooledMap
+
+#: Block sizes (samples) of the first, cheap bound of every map and diameter.
+COARSE_BLOCKS = (16,)
+#: Block sizes tried when a map's bound must be refined, before full disc-power maps.
+FINE_BLOCKS = (4,)
 
 __all__ = ["MapSweep"]
+
+
+class _Compact:
+    """One map's own maxima, in arrays shared by every map of the sweep (per diameter a
+    row per map), so that a sweep of many unkeyed frames keeps a few floats per frame.
+
+    Keys as in a cache: ``d`` (refined ``(row, col, bound)``), ``("pooled", d)``
+    (``(row, col, bound, found)``) and ``("loose", d)``.
+    """
+
+    def __init__(self, store: dict, index: int, n: int):
+        self.store, self.index, self.n = store, index, n
+
+    def _table(self, key, make: bool):
+        kind, d = key if isinstance(key, tuple) else ("exact", key)
+        width = {"exact": 3, "pooled": 4, "loose": 1}[kind]
+        table = self.store.get((kind, d))
+        if table is None and make:
+            table = self.store[(kind, d)] = np.full((self.n, width), np.nan)
+        return table
+
+    def __contains__(self, key) -> bool:
+        table = self._table(key, False)
+        return table is not None and not np.isnan(table[self.index, 0])
+
+    def __getitem__(self, key):
+        if key not in self:
+            raise KeyError(key)
+        return tuple(float(v) for v in self._table(key, False)[self.index])
+
+    def __setitem__(self, key, value) -> None:
+        self._table(key, True)[self.index] = value
+
+
+def _tight(bound: float, found: float) -> bool:
+    return bound <= (1.0 + CENTRE_TOLERANCE) * found or bound <= 0.0
 
 
 class MapSweep:
     """The maps of a sequence, read one at a time.
 
     :meth:`accumulate` builds the dose and peak maps; :meth:`maxima` finds, for
-    a list of disc diameters, each lit map's largest disc power and its centre
-    (full FFT disc-power maps, exact sum at the maximum); :meth:`powers_at`
-    sums each lit map's discs exactly at chosen centres.
+    a list of disc diameters, each lit map's largest disc power bounded over
+    every centre and where it was found: first by block sums
+    (:mod:`stimplan.exposure.pooled`), and, with ``refine=True``, by finer
+    blocks and then full FFT disc-power maps until the bound is within
+    :data:`CENTRE_TOLERANCE` of an exact sum; :meth:`powers_at` sums each lit
+    map's discs exactly at chosen centres.
     """
 
     def __init__(self, groups, grid, weight_s, max_scale, overlap, cache, progress=None):
         self.groups, self.grid, self.cache = groups, grid, cache
         self.progress = progress
         self.loose = 0  # maps and diameters whose bound between samples stayed loose
+        self.disc_maps = 0  # full FFT disc-power maps computed
+        self.exact_sums = 0  # exact disc sums evaluated
         self.weight_s, self.max_scale, self.overlap = weight_s, max_scale, overlap
         self.dose = np.zeros(grid.shape, dtype=np.float64)
         self.peak = np.zeros(grid.shape, dtype=np.float64)
         self.lit: list[int] = []
+        self._held: tuple | None = None  # (group or "dose", PreparedMap, PooledMap, peak index)
+        self._own: dict = {}  # maxima of maps with no key and of the dose map (_Compact)
+        self._spectra: dict = {}
+        self._tight_here: set = set()  # (group or "dose", diameter) refined in this run
 
     def _read(self, gi: int) -> np.ndarray:
         g = self.groups[gi]
         return np.ascontiguousarray(load_map(g.source, self.grid.shape, g.field))
+
+    def _hold(self, gi):
+        """The prepared and pooled forms of one map, kept until another map is read."""
+        if self._held is None or self._held[0] != gi:
+            self._held = None
+            irr = self.dose if gi == "dose" else self._read(gi)
+            g = self.grid
+            prepared = PreparedMap.of(irr, g.pitch_x_um, g.pitch_y_um)
+            pooled = PooledMap(prepared.irradiance, g.pitch_x_um, g.pitch_y_um)
+            self._held = (gi, prepared, pooled, divmod(int(np.argmax(irr)), irr.shape[1]))
+        return self._held[1:]
 
     def _lit_frames(self, gi: int) -> list[int]:
         return [k for k in self.groups[gi].frames if self.max_scale[k] > 0]
@@ -55,73 +124,172 @@ class MapSweep:
             if self._lit_frames(gi) and bool(lit[0]):
                 self.lit.append(gi)
 
-    def _map_maxima(self, irr: np.ndarray, key, diameters, integ) -> list[tuple[int, int, float]]:
+    def _sums(self, prepared, d, rows, cols) -> np.ndarray:
+        self.exact_sums += len(rows)
+        return sums_at_samples(prepared, d, rows, cols)
+
+    def _pooled(self, prepared, pooled, peak_at, d, blocks, start=None):
+        """Bound of the largest disc power from block sums (and the peak and the whole map)
+        and the best exact sum at the candidates: ``(row, col, bound, found)``.
+
+        ``start`` is an earlier ``(row, col, bound, found)`` of the same map and disc to
+        go on from (its bound and value are kept if better).
+        """
+        r = d / 2.0
+        if start is None:
+            # every cell holds at most the peak irradiance over its area inside the disc
+            bound = min(
+                prepared.peak * math.pi * r * r * 1e-6 * (1.0 + 1e-12), whole_map_mw(prepared)
+            )
+            rows, cols = [float(peak_at[0])], [float(peak_at[1])]
+            found, fr, fc = -1.0, rows[0], cols[0]
+        else:
+            fr, fc, bound, found = start
+            rows, cols = [], []
+        for m in blocks:
+            if bound <= (1.0 + CENTRE_TOLERANCE) * found:
+                break
+            pb = pooled.bound(d, m)
+            bound = min(bound, pb.bound_mw)
+            rows, cols = [*rows, *pb.rows.tolist()], [*cols, *pb.cols.tolist()]
+            vals = self._sums(prepared, d, rows, cols)
+            k = int(np.argmax(vals))
+            if vals[k] > found:
+                found, fr, fc = float(vals[k]), rows[k], cols[k]
+            rows, cols = [], []
+        found = max(found, 0.0)
+        return fr, fc, max(bound, found), found
+
+    def _cache_for(self, gi):
+        """Where a map's maxima are kept: the shared cache for a keyed map, else the sweep's own."""
+        key = None if gi == "dose" else self.groups[gi].key
+        if key is not None and self.cache is not None:
+            return self.cache, key
+        index = len(self.groups) if gi == "dose" else gi
+        return _Compact(self._own, index, len(self.groups) + 1), None
+
+    def _map_maxima(self, gi, diameters, integ, refine) -> list[tuple[float, float, float]]:
         g = self.grid
-        tags = [(key, g.shape, g.pitch_x_um, g.pitch_y_um, d) for d in diameters]
+        cache, key = self._cache_for(gi)
+        own = key is None  # the sweep's own store: keyed by the diameter alone
+        tags = [d if own else (key, g.shape, g.pitch_x_um, g.pitch_y_um, d) for d in diameters]
         tag_of = dict(zip(diameters, tags, strict=True))
-        cache = self.cache if (key is not None and self.cache is not None) else {}
-        todo = [d for d, t in zip(diameters, tags, strict=True) if t not in cache]
         # maxima shared through the cache still count when their bound stayed loose
-        self.loose += sum(1 for t in tags if t in cache and ("loose", t) in cache)
+        self.loose += sum(
+            1
+            for d, t in zip(diameters, tags, strict=True)
+            if refine and (gi, d) not in self._tight_here and t in cache and ("loose", t) in cache
+        )
+        # a run reads a refined maximum only where it asked for one, so that the result
+        # does not depend on what a shared cache happens to hold
+        want = [t if refine else ("pooled", t) for t in tags]
+        todo = [d for d, w in zip(diameters, want, strict=True) if w not in cache]
         if todo:
-            prepared = PreparedMap.of(irr, g.pitch_x_um, g.pitch_y_um)
-            f32 = irr if irr.dtype == np.float32 else irr.astype(np.float32)
-            a64 = irr.astype(np.float64, copy=False)
-            l1, l2 = float(a64.sum()), float(np.sqrt(np.sum(a64 * a64)))
-            spectra: dict = {}
+            self._spectra = {}  # the map's spectra, for this map only
+            prepared, pooled, peak_at = self._hold(gi)
+            irr = prepared.irradiance
             slack = centre_slack_um(g)
             for d in sorted(todo, key=lambda d: integ.shape_for(d + slack)):
+                t = tag_of[d]
                 if integ.is_point(d):
                     r, c = peak_location(irr)
-                    value = float(irr[r, c]) * point_area_mm2(d)
-                else:
-                    # the disc grown by a cell diagonal covers centres between samples
-                    dd = d + slack
-                    pm = integ.power_map_mw(f32, dd, spectra)
-                    r, c = peak_location(pm)
-                    exact = float(sums_at_samples(prepared, d, [r], [c])[0])
-                    err = integ.error_bound_mw(l1, l2, dd)
-
-                    def plain(d=d):
-                        return (
-                            integ.power_map_mw(f32, d, spectra),
-                            integ.error_bound_mw(l1, l2, d),
-                        )
-
-                    res = bound_between_samples(
-                        pm,
-                        prepared,
-                        d,
-                        slack_um=slack,
-                        err_mw=err,
-                        found_mw=exact,
-                        row=r,
-                        col=c,
-                        plain_map=plain,
+                    value = float(irr[r, c]) * point_area_mm2(d)  # exact: found = bound
+                    cache[("pooled", t)] = (float(r), float(c), value, value)
+                    cache[t] = (float(r), float(c), value)
+                    continue
+                if ("pooled", t) not in cache:
+                    # (row, col, bound, found): the value found is kept to go on from
+                    cache[("pooled", t)] = start = self._pooled(
+                        prepared, pooled, peak_at, d, COARSE_BLOCKS
                     )
-                    r, c, value = res.row, res.col, max(res.found_mw, res.bound_mw)
-                    if not res.tight:
-                        self.loose += 1
-                        cache[("loose", tag_of[d])] = True
-                cache[tag_of[d]] = (r, c, value)
-                if self.progress is not None:
-                    self.progress()
-        return [cache[t] for t in tags]
+                    if _tight(start[2], start[3]):
+                        cache[t] = start[:3]
+                if not refine or t in cache:
+                    continue
+                start = cache[("pooled", t)]
+                fr, fc, bound, found = self._pooled(
+                    prepared, pooled, peak_at, d, FINE_BLOCKS, start
+                )
+                if _tight(bound, found):
+                    cache[t] = (fr, fc, bound)
+                else:
+                    cache[t] = self._fft_maximum(prepared, d, integ, t, cache)
+                    if self.progress is not None:
+                        self.progress()
+            pooled.forget()
+            integ.forget()  # kernel spectra are not held across maps: memory set by the grid
+        for d, t in zip(diameters, tags, strict=True):
+            if refine or (t in cache and cache[t] == cache[("pooled", t)][:3]):
+                self._tight_here.add((gi, d))
+        return [cache[w][:3] for w in want]
 
-    def maxima(self, diameters: Sequence[float]) -> dict[int, list[tuple[int, int, float]]]:
+    def _fft_maximum(self, prepared, d, integ, tag, cache) -> tuple[float, float, float]:
+        """The largest disc power from full FFT disc-power maps (grown disc, then branch and
+        bound between samples where that is loose)."""
+        irr = prepared.irradiance
+        f32 = irr if irr.dtype == np.float32 else irr.astype(np.float32)
+        a64 = irr.astype(np.float64, copy=False)
+        l1, l2 = float(a64.sum()), float(np.sqrt(np.sum(a64 * a64)))
+        spectra: dict = self._spectra
+        slack = centre_slack_um(self.grid)
+        dd = d + slack  # the disc grown by a cell diagonal covers centres between samples
+        pm = integ.power_map_mw(f32, dd, spectra)
+        self.disc_maps += 1
+        r, c = peak_location(pm)
+        exact = float(self._sums(prepared, d, [r], [c])[0])
+        err = integ.error_bound_mw(l1, l2, dd)
+
+        def plain(d=d):
+            self.disc_maps += 1
+            return integ.power_map_mw(f32, d, spectra), integ.error_bound_mw(l1, l2, d)
+
+        res = bound_between_samples(
+            pm,
+            prepared,
+            d,
+            slack_um=slack,
+            err_mw=err,
+            found_mw=exact,
+            row=r,
+            col=c,
+            plain_map=plain,
+        )
+        if not res.tight:
+            self.loose += 1
+            cache[("loose", tag)] = True
+        return res.row, res.col, max(res.found_mw, res.bound_mw)
+
+    def maxima(
+        self, diameters: Sequence[float], *, refine: bool = False
+    ) -> dict[int, list[tuple[float, float, float]]]:
         """Per lit map group, per diameter: centre and bound of the largest disc power.
 
-        One integrator serves every map, so each disc kernel is transformed once.
+        Without ``refine`` the bound may be loose (block sums only); with it,
+        every bound is within :data:`CENTRE_TOLERANCE` of an exact sum unless
+        the search between samples stopped at its budget (counted in
+        :attr:`loose`). One integrator serves every map, so each disc kernel is
+        transformed once.
         """
         integ = DiscIntegrator(self.grid, max(diameters) + centre_slack_um(self.grid))
-        out = {
-            gi: self._map_maxima(self._read(gi), self.groups[gi].key, diameters, integ)
-            for gi in self.lit
-        }
+        self._spectra: dict = {}
+        out = {gi: self._map_maxima(gi, diameters, integ, refine) for gi in self.lit}
         integ.forget()
+        self._spectra = {}
         return out
 
-    def dose_maxima(self, diameters: Sequence[float], per_map) -> list[tuple[int, int, float]]:
+    def is_tight(self, diameter_um: float) -> bool:
+        """Whether every lit map's bound at this diameter is refined (not block sums only)."""
+        return all(self._refined(gi, diameter_um) for gi in self.lit)
+
+    def dose_is_tight(self, diameter_um: float) -> bool:
+        """Whether the dose map's bound at this diameter is refined (always, with one lit
+        map: it is then a multiple of that map's)."""
+        return len(self.lit) <= 1 or self._refined("dose", diameter_um)
+
+    def _refined(self, gi, diameter_um: float) -> bool:
+        return (gi, diameter_um) in self._tight_here
+
+    def dose_maxima(self, diameters: Sequence[float], per_map, *, refine: bool = False):
         """The dose map's largest disc energies. With one lit map the dose map is a
         multiple of it (the disc integral is linear), so no transform is needed."""
         if len(self.lit) == 1:
@@ -129,20 +297,21 @@ class MapSweep:
             w = sum(float(self.weight_s[k]) for k in self.groups[gi].frames)
             return [(r, c, value * w) for (r, c, value) in per_map[gi]]
         integ = DiscIntegrator(self.grid, max(diameters) + centre_slack_um(self.grid))
-        out = self._map_maxima(self.dose, None, diameters, integ)
+        self._spectra = {}
+        out = self._map_maxima("dose", diameters, integ, refine)
         integ.forget()
+        self._spectra = {}
         return out
 
     def powers_at(self, diameters, locations) -> dict[int, list[np.ndarray]]:
         """Per lit map group, per diameter: exact disc powers at that diameter's locations
         (fractional sample indices: centres may fall between samples)."""
-        g = self.grid
         out = {}
         for gi in self.lit:
-            prepared = PreparedMap.of(self._read(gi), g.pitch_x_um, g.pitch_y_um)
+            prepared = self._hold(gi)[0]
             row = []
             for d, locs in zip(diameters, locations, strict=True):
                 rr, cc = np.array(locs, dtype=np.float64).reshape(-1, 2).T
-                row.append(sums_at_samples(prepared, d, rr, cc))
+                row.append(self._sums(prepared, d, rr, cc))
             out[gi] = row
         return out
