@@ -2,7 +2,9 @@
 
 For each distinct stimulus: the target, the SLM phase, the predicted retina
 with the implant outline, the per-pixel power map, a histogram of ON and OFF
-pixel power and a bar chart of hologram against mask. For the sequence: the
+pixel power, a bar chart of hologram against mask, and the implant's view
+(each pixel's photodiode irradiance against the implant's stimulation
+threshold range, :mod:`stimplan.present.view_figure`). For the sequence: the
 timeline and the exposure ratios against the limit. And the cautions, at the
 top and beside every exposure figure.
 """
@@ -21,8 +23,10 @@ from .. import __version__
 from ..atomic import atomic_file
 from ..budget import BUDGET_LABELS
 from ..cautions import CAUTIONS, EDITION
+from ..errors import ConfigError
 from ..plan.evaluate import mask_exposure, max_laser_power_mw
-from .summary import budget_text, mask_entry, stimulus_rows
+from .summary import budget_text, mask_entry, stimulus_rows, stimulus_view, view_text
+from .view_figure import VIEW_TITLE, view_figure
 
 __all__ = ["render_report", "write_report"]
 
@@ -161,6 +165,13 @@ def _stimulus_figures(plan, sp, power_mw: float) -> list[tuple[str, str]]:
             ax.set_ylim(0, max(vals) * 1.15)
             ax.set_title(f"same laser power ({power_mw:.3g} mW): {vals[0] / vals[1]:.3g}×")
         out.append(("Per-pixel power", _fig_to_data_uri(fig)))
+    try:
+        view = stimulus_view(plan, sp, power_mw) if power_mw > 0 else None
+    except ConfigError:  # no threshold range: the table row says why
+        view = None
+    if view is not None:
+        fig = view_figure(plt, plan.spec.implant, view, power_mw=power_mw)
+        out.append((VIEW_TITLE, _fig_to_data_uri(fig)))
     if sp.budget is not None and power_mw > 0:
         out.append(("Light budget", _budget_figure(plt, sp.budget.scaled(power_mw))))
     return out
@@ -449,6 +460,8 @@ def render_report(plan) -> str:
             )
         if row["light_budget"] is not None:
             rows.append(("light budget", budget_text(row["light_budget"])))
+        if spec.implant is not None:
+            rows.append(("implant's view", view_text(row["implant_view"])))
         parts.append(_table(rows))
         for w in row["warnings"]:
             parts.append(f"<p class='warning'>{html.escape(w)}</p>")
@@ -456,6 +469,8 @@ def render_report(plan) -> str:
             parts.append(
                 f"<h4>{html.escape(title)}</h4><img src='{uri}' alt='{html.escape(title)}'>"
             )
+            if title == VIEW_TITLE:  # retinal irradiance: with the cautions
+                parts.append(f"<p class='caution'>{html.escape(CAUTIONS)}</p>")
     parts.append(f"<div class='caution'><b>Caution.</b> {html.escape(CAUTIONS)}</div>")
     parts.append("</body></html>")
     return "\n".join(parts)
