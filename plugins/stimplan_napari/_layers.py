@@ -18,6 +18,9 @@ from typing import Any
 
 import numpy as np
 
+from stimplan.cautions import CAUTION_SHORT
+from stimplan.errors import ConfigError
+from stimplan.implant import implant_view, stimulation_threshold
 from stimplan.plan import REFERENCE_POWER_MW
 
 __all__ = [
@@ -30,6 +33,8 @@ __all__ = [
     "display_yx",
     "frame_stack",
     "implant_shapes",
+    "implant_view_shapes",
+    "result_view",
     "zero_order_points",
     "stimulus_layers",
     "plan_frame_maps",
@@ -51,6 +56,7 @@ LAYER_NAMES = {
     "irradiance": "retina irradiance (mW/mm²)",
     "implant": "implant pixels (µW delivered)",
     "outline": "implant pixels (outline)",
+    "implant_view": "implant's view (photodiode irradiance / high threshold, log10)",
     "zero_order": "zero order",
     "sequence": "sequence retina (mW/mm²)",
     "sequence_grey": "sequence SLM grey (SLM plane)",
@@ -206,6 +212,81 @@ def implant_shapes(
     return (data, kwargs, "shapes")
 
 
+#: Edge colours of the implant's view: ON pixels under the high end of the threshold
+#: range (may not stimulate), OFF pixels over the low end (may stimulate), the others.
+VIEW_EDGES = {"on_below": "red", "off_above": "magenta", "on": "white", "off": "gray"}
+
+
+def result_view(result):
+    """The implant's view of a computed stimulus at its laser power, or None (no implant,
+    or no threshold range: :func:`stimplan.implant.stimulation_threshold` says why)."""
+    if result.implant is None or result.readout is None or result.on is None:
+        return None
+    try:
+        threshold = stimulation_threshold(result.implant)
+    except ConfigError:
+        return None
+    k = result.power_mw / REFERENCE_POWER_MW
+    return implant_view(result.readout, result.on, threshold=threshold, scale=k)
+
+
+def implant_view_shapes(implant, view, *, visible: bool = False) -> tuple:
+    """The implant's view as a Shapes layer: each pixel cell filled with log10 of its
+    photodiode irradiance over the high end of the threshold range, flagged pixels
+    outlined (:data:`VIEW_EDGES`).
+
+    Parameters
+    ----------
+    implant : Implant
+    view : ImplantView
+    visible : bool
+        Hidden at first (it covers the photodiode power layer).
+
+    Returns
+    -------
+    tuple
+        ``(polygons, kwargs, "shapes")`` with coordinates ``(-y, x)`` in µm; the
+        features hold each pixel's irradiance (mW/mm²) and its flags, the metadata
+        the range, its source and the cautions.
+    """
+    polys = implant.pixel_polygons_um("cell")
+    data = list(display_yx(polys[..., 0], polys[..., 1]))
+    t = view.threshold
+    rel = view.relative_to_high
+    floor = 0.1 * t.low_mw_per_mm2 / t.high_mw_per_mm2
+    log_rel = np.log10(np.maximum(rel, floor))
+    edges = np.where(view.on, VIEW_EDGES["on"], VIEW_EDGES["off"]).astype(object)
+    edges[view.on_below] = VIEW_EDGES["on_below"]
+    edges[view.off_above] = VIEW_EDGES["off_above"]
+    features = {
+        "pixel": np.arange(len(data)),
+        "irradiance_mw_per_mm2": view.irradiance_mw_per_mm2,
+        "log10_over_high": log_rel,
+        "on": view.on,
+        "on_below": view.on_below,
+        "off_above": view.off_above,
+    }
+    kwargs = {
+        "name": LAYER_NAMES["implant_view"],
+        "shape_type": "polygon",
+        "features": features,
+        "face_color": "log10_over_high",
+        "face_colormap": "viridis",
+        "face_contrast_limits": (float(np.log10(floor)), max(1.0, float(log_rel.max()))),
+        "edge_color": list(edges),
+        "edge_width": max(implant.pitch_um * 0.05, 0.5),
+        "opacity": 0.9,
+        "visible": visible,
+        "units": ("um", "um"),
+        "metadata": {
+            "threshold_mw_per_mm2": t.as_pair(),
+            "source": t.source,
+            "cautions": CAUTION_SHORT,
+        },
+    }
+    return (data, kwargs, "shapes")
+
+
 def zero_order_points(zero_order_um: tuple[float, float], field_width_um: float) -> tuple:
     """A Points layer marking the zero order (the optical axis unless the relay moves it)."""
     x, y = zero_order_um
@@ -271,6 +352,11 @@ def stimulus_layers(result) -> list[tuple]:
         shp = implant_shapes(result.implant, result.pixel_power_uw, result.on)
         shp[1]["metadata"] = meta
         layers.append(shp)
+        view = result_view(result)
+        if view is not None:
+            vshp = implant_view_shapes(result.implant, view)
+            vshp[1]["metadata"] = {**vshp[1]["metadata"], **meta}
+            layers.append(vshp)
     pts = zero_order_points(pred.zero_order_um, result.system.field_width_um)
     pts[1]["metadata"] = meta
     layers.append(pts)

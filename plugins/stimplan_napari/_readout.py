@@ -14,7 +14,7 @@ from napari.utils.notifications import show_warning
 
 from stimplan.cautions import CAUTION_SHORT, CAUTIONS
 from stimplan.plan.evaluate import stimulus_exposures
-from stimplan.present.summary import plan_summary
+from stimplan.present.summary import plan_summary, view_text
 
 from ._layers import EXPORT_KEY
 
@@ -54,6 +54,11 @@ class StimulusFigures:
     exposure_ratio : float or None
         Worst exposure/limit ratio of this stimulus's frames alone.
     verdict : str or None
+    warnings : tuple of str
+        Legibility warnings.
+    implant_view : str
+        The implant's view: ON pixels under and OFF pixels over the threshold range,
+        or why there is none (:func:`stimplan.present.summary.view_text`).
     """
 
     name: str
@@ -64,6 +69,7 @@ class StimulusFigures:
     exposure_ratio: float | None
     verdict: str | None
     warnings: tuple[str, ...] = ()
+    implant_view: str = "-"
 
     @property
     def gain_over_mask(self) -> float | None:
@@ -142,6 +148,7 @@ def readout_from_plan(plan, title: str | None = None) -> Readout:
             exposure_ratio=row["exposure_ratio"],
             verdict=row["verdict"],
             warnings=tuple(row["warnings"]),
+            implant_view=view_text(row["implant_view"]),
         )
         for row in summary["stimuli"]
     ]
@@ -183,6 +190,7 @@ TABLE_COLUMNS = (
     "exposure / limit",
     "verdict",
     "legibility",
+    "implant's view",
 )
 
 
@@ -202,6 +210,7 @@ def readout_table(r: Readout | None) -> tuple[tuple[str, ...], list[list[str]]]:
                 _g(s.exposure_ratio),
                 s.verdict or "-",
                 "; ".join(s.warnings) or "ok",
+                s.implant_view,
             ]
         )
     return TABLE_COLUMNS, rows
@@ -227,6 +236,7 @@ def readout_text(r: Readout, *, stimuli: bool = True) -> str:
                 f"{_g(s.exposure_ratio)} of the limit, {s.verdict or '-'}"
             )
             lines += [f"  legibility: {w}" for w in s.warnings]
+            lines.append(f"  implant's view: {s.implant_view}")
         lines.append("")
     lines.append("exposure of the whole sequence (ratio to the limit of each rule):")
     if not r.rule_ratios:
