@@ -396,3 +396,32 @@ def test_compiled_quadrant_areas_equal_the_formula(rng):
     got = polygon_quadrant_grid(verts, xr, yr)
     want = polygon_quadrant_area(verts, xr[:, None, :], yr[:, :, None])
     np.testing.assert_allclose(got, want, rtol=1e-12, atol=1e-9)
+
+
+def test_implant_view_of_a_uniform_field_against_the_published_range():
+    # Source: Mathieson et al., Nat. Photonics 6(6), 391-397 (2012), abstract: threshold
+    # peak irradiance 0.2-10 mW/mm² (rat retina, 70 µm bipolar pixels). Closed form: the
+    # mean of a uniform irradiance over any photodiode is that irradiance.
+    from stimplan.implant import implant_view, stimulation_threshold
+
+    imp = implant_preset("rat_55um", rings=3)
+    t = stimulation_threshold(imp)
+    assert (t.low_mw_per_mm2, t.high_mw_per_mm2) == (0.2, 10.0)
+    assert "Mathieson" in t.source and "70 µm bipolar" in t.source
+    grid = _grid_for(55.0, n=256, per_pitch=9.0)
+    ro = imp.readout(np.ones(grid.shape, np.float32), grid)  # 1 mW/mm² everywhere
+    on = np.arange(imp.n_pixels) % 2 == 0
+    n_on, n_off = int(on.sum()), int((~on).sum())
+    # (scale, ON under 10, OFF over 0.2): 0.1 and 1 mW/mm² are under the high end,
+    # 1 and 20 over the low end
+    for scale, on_below, off_above in ((0.1, n_on, 0), (1.0, n_on, n_off), (20.0, 0, n_off)):
+        d = implant_view(ro, on, threshold=t, scale=scale).as_dict()
+        assert (d["on_below"], d["off_above"]) == (on_below, off_above), scale
+        assert (d["on_pixels"], d["off_pixels"]) == (n_on, n_off)
+    # common practice: no published threshold, no view; the message names the key to give
+    with pytest.raises(ConfigError) as info:
+        stimulation_threshold(implant_preset("human_100um"))
+    assert info.value.field == "implant.threshold_mw_per_mm2"
+    assert "under [implant]" in str(info.value)
+    own = stimulation_threshold(implant_preset("rat_55um", threshold_mw_per_mm2=[0.03, 0.09]))
+    assert own.as_pair() == [0.03, 0.09] and "Mathieson" not in own.source

@@ -208,6 +208,7 @@ def test_report_is_self_contained_with_cautions(plan):
     assert images >= 5
     assert "not a safety approval" in text
     assert "src='http" not in text and 'src="http' not in text
+    assert "photodiode irradiance against the stimulation threshold" in text
 
 
 def test_report_speaks_in_labels_with_units_and_defines_its_terms(plan):
@@ -223,6 +224,21 @@ def test_report_speaks_in_labels_with_units_and_defines_its_terms(plan):
         assert f"<b>{term}</b>:" in visible
     assert "light budget" in visible and "of the deliverable" in visible
     assert "efficiency × area × coverage" in visible
+
+
+def test_check_json_gives_the_implant_view_against_the_published_range(plan):
+    # Source: Mathieson et al., Nat. Photonics 6(6), 391-397 (2012), abstract: threshold
+    # peak irradiance 0.2-10 mW/mm². The grating is planned for 1 mW/mm² mean on its ON
+    # photodiodes (the sequence's irradiance target, CV about 1 %), under the high end,
+    # so every ON pixel may not stimulate.
+    from stimplan.present.summary import plan_summary
+
+    s = plan_summary(plan)
+    view = next(r for r in s["stimuli"] if r["name"] == "bars")["implant_view"]
+    assert view["threshold_mw_per_mm2"] == [0.2, 10.0] and "Mathieson" in view["source"]
+    assert view["on_pixels"] > 0 and view["on_below"] == view["on_pixels"]
+    assert view["on_pixels"] + view["off_pixels"] == plan.spec.implant.n_pixels
+    assert "cautions" in s
 
 
 def test_mask_exposure_at_equal_irradiance_scales_with_its_power(tmp_path):

@@ -99,3 +99,22 @@ def test_unknown_key_wrong_type_and_out_of_range_are_all_reported_at_once():
     assert fields == ["optics.relay.magnification", "optics.slm.colour", "optics.slm.pitch_um"]
     unknown = next(e for e in err.errors if e.field == "optics.slm.colour")
     assert unknown.detail == "unknown key" and "pitch_um" in unknown.allowed
+
+
+def test_an_implant_threshold_range_is_given_in_its_table_and_checked():
+    # common practice: a researcher's own measured range, with its source, rides in
+    # [implant]; a reversed range is refused naming the key, the value and what is allowed
+    text = TEXT.replace(
+        'preset = "rat_55um"',
+        'preset = "rat_55um"\nthreshold_mw_per_mm2 = [0.05, 0.5]\nthreshold_source = "our VEP"',
+        1,
+    )
+    spec = parse_sequence(text)
+    assert spec.implant.threshold_mw_per_mm2 == (0.05, 0.5)
+    assert spec.implant.threshold_source == "our VEP"
+    assert spec.to_dict()["implant"]["threshold_mw_per_mm2"] == (0.05, 0.5)
+    err = _errors(text.replace("[0.05, 0.5]", "[0.5, 0.05]"))
+    assert [e.field for e in err.errors] == ["implant.threshold_mw_per_mm2"]
+    assert "low <= high" in err.errors[0].allowed
+    err = _errors(text.replace("[0.05, 0.5]", "[0.05, 1e6]"))
+    assert [e.field for e in err.errors] == ["implant.threshold_mw_per_mm2[1]"]
