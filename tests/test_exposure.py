@@ -381,7 +381,8 @@ def test_bad_lazy_frames_are_named():
 def _traced_peak_bytes(frames, grid) -> int:
     tracemalloc.start()
     try:
-        ex.assess_sequence(frames, grid, 880.0, alphas_mrad=(1.5, 5.0, 20.0, 50.0))
+        # a loose angle tolerance: fewer angles, the same arrays
+        ex.assess_sequence(frames, grid, 880.0, alphas_mrad=(1.5, 5.0, 20.0, 50.0), tolerance=0.1)
         return tracemalloc.get_traced_memory()[1]
     finally:
         tracemalloc.stop()
@@ -478,7 +479,9 @@ def test_memory_does_not_grow_with_the_number_of_frames(tmp_path):
     (tmp_path / "many").mkdir()
     # the same four maps, shown by 4 or by 16 frames (each frame reads its own file): the
     # work per map is then the same, only the number of frames differs
-    _traced_peak_bytes(_lazy_from_disk(tmp_path / "few", grid, 4), grid)  # compile, plan FFTs
+    ex.assess_sequence(
+        _lazy_from_disk(tmp_path / "few", grid, 4), grid, 880.0
+    )  # compile, plan FFTs
     few = _traced_peak_bytes(_lazy_from_disk(tmp_path / "few", grid, 4), grid)
     many = _traced_peak_bytes(_lazy_from_disk(tmp_path / "many", grid, 16, distinct=4), grid)
     assert many <= few * 1.25

@@ -173,6 +173,9 @@ class ExposureAssessment:
     notes: tuple[str, ...]
     edition: str = EDITION
     caution: str = field(default=CAUTION_SHORT, repr=False)
+    #: The work done: ``disc_maps`` (full FFT disc-power maps), ``exact_sums`` (exact
+    #: disc sums at chosen centres), ``angles`` (acceptance angles evaluated).
+    work: dict = field(default_factory=dict, repr=False, compare=False)
 
     @property
     def max_dose_mj_per_mm2(self) -> float:
@@ -569,10 +572,14 @@ def assess_sequence(
         f"({len(angles)} angles evaluated). The bound of each rule other than the binding "
         "one may be looser.",
         "Each map's largest disc power is bounded over every centre, also between samples "
-        "(the map uniform within each sample): full FFT disc-power maps of the disc grown by "
-        "a sample diagonal, with exact cell areas and a bound of their float32 round-off, "
-        "refined by branch and bound where that is more than "
-        f"{CENTRE_TOLERANCE:.1%} loose; for the bound, the largest disc powers of all maps "
+        "(the map uniform within each sample): first by sums of blocks of samples that a "
+        "disc centred in each block can reach (and by the peak irradiance times the disc "
+        "area), with exact disc sums at the best blocks; where that bound could decide the "
+        "result and is more than "
+        f"{CENTRE_TOLERANCE:.1%} above the sum found, by smaller blocks and then by full FFT "
+        "disc-power maps of the disc grown by a sample diagonal (exact cell areas, a bound "
+        "of their round-off), refined by branch and bound between samples; for the bound, "
+        "the largest disc powers of all maps "
         "are taken to fall at one place, with every energy cut to the largest disc energy of "
         "the dose map.",
         f"The bound is {gap:.3g}x the largest ratio found exactly at one place.",
@@ -595,23 +602,27 @@ def assess_sequence(
             "The protocol cap is evaluated per grid sample; the time average is over the "
             "whole sequence (first pulse start to last pulse end)."
         )
-    return _result(
-        lam,
-        grid,
-        items,
-        all_pulses,
-        total,
-        dose,
-        peak,
-        rules,
-        found,
-        gap,
-        prot,
-        tuple(angle_rows),
-        eye,
-        subject,
-        notes,
-        angles,
+    work = {"disc_maps": sweep.disc_maps, "exact_sums": sweep.exact_sums, "angles": len(angles)}
+    return replace(
+        _result(
+            lam,
+            grid,
+            items,
+            all_pulses,
+            total,
+            dose,
+            peak,
+            rules,
+            found,
+            gap,
+            prot,
+            tuple(angle_rows),
+            eye,
+            subject,
+            notes,
+            angles,
+        ),
+        work=work,
     )
 
 

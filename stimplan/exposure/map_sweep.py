@@ -24,10 +24,22 @@ from .map_maxima import (
 )
 from .pooled import PooledMap
 
-#: Block sizes (samples) of the first, cheap bound of every map and diameter.
-COARSE_BLOCKS = (16,)
-#: Block sizes tried when a map's bound must be refined, before full disc-power maps.
-FINE_BLOCKS = (4,)
+#: Largest block (samples) of the first, cheap bound of every map and diameter; a
+#: block is at most an eighth of the disc's radius (at least one sample).
+COARSE_BLOCK = 16
+#: A refined bound tries blocks this many times smaller, before full disc-power maps.
+FINE_FACTOR = 4
+
+
+def _blocks(radius_um: float, pitch_um: float) -> tuple[tuple[int, ...], tuple[int, ...]]:
+    """Block sizes (coarse, fine) for a disc: powers of 2, the coarse one at most
+    :data:`COARSE_BLOCK` and at most an eighth of the radius."""
+    m = COARSE_BLOCK
+    while m > 1 and m * pitch_um > radius_um / 8.0:
+        m //= 2
+    fine = max(m // FINE_FACTOR, 1)
+    return (m,), ((fine,) if fine < m else ())
+
 
 __all__ = ["MapSweep"]
 
@@ -188,6 +200,7 @@ class MapSweep:
             self._spectra = {}  # the map's spectra, for this map only
             prepared, pooled, peak_at = self._hold(gi)
             irr = prepared.irradiance
+            pitch = max(g.pitch_x_um, g.pitch_y_um)
             slack = centre_slack_um(g)
             for d in sorted(todo, key=lambda d: integ.shape_for(d + slack)):
                 t = tag_of[d]
@@ -200,7 +213,7 @@ class MapSweep:
                 if ("pooled", t) not in cache:
                     # (row, col, bound, found): the value found is kept to go on from
                     cache[("pooled", t)] = start = self._pooled(
-                        prepared, pooled, peak_at, d, COARSE_BLOCKS
+                        prepared, pooled, peak_at, d, _blocks(d / 2.0, pitch)[0]
                     )
                     if _tight(start[2], start[3]):
                         cache[t] = start[:3]
@@ -208,7 +221,7 @@ class MapSweep:
                     continue
                 start = cache[("pooled", t)]
                 fr, fc, bound, found = self._pooled(
-                    prepared, pooled, peak_at, d, FINE_BLOCKS, start
+                    prepared, pooled, peak_at, d, _blocks(d / 2.0, pitch)[1], start
                 )
                 if _tight(bound, found):
                     cache[t] = (fr, fc, bound)
