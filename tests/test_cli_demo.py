@@ -109,12 +109,12 @@ def test_over_limit_export_exits_2_and_acknowledgement_is_recorded(tmp_path, cap
     assert load_export(out).manifest["acknowledgement"]["reason"] == reason
 
 
-def test_report_command_and_overwrite(seq, tmp_path):
+def test_report_command_and_overwrite(tiny, tmp_path):
     out = tmp_path / "r.html"
-    assert main(["report", str(seq), "-o", str(out)]) == 0
+    assert main(["report", str(tiny), "-o", str(out)]) == 0
     assert "not a safety approval" in out.read_text()
-    assert main(["report", str(seq), "-o", str(out)]) == 1
-    assert main(["report", str(seq), "-o", str(out), "--force"]) == 0
+    assert main(["report", str(tiny), "-o", str(out)]) == 1
+    assert main(["report", str(tiny), "-o", str(out), "--force"]) == 0
 
 
 def test_version_and_help(capsys):
@@ -338,15 +338,15 @@ def test_check_flags_a_landolt_c_finer_than_the_clinical_array(tmp_path, capsys)
     assert rows["ring_19"]["resolvable"] is True and not rows["ring_19"]["warnings"]
 
 
-def test_verbose_prints_the_time_of_each_stage_and_the_manifest_records_it(seq, tmp_path, capsys):
+def test_verbose_prints_the_time_of_each_stage_and_the_manifest_records_it(tiny, tmp_path, capsys):
     # common practice: a user sees where the time goes
-    assert main(["check", str(seq), "--quiet", "--verbose"]) == 0
+    assert main(["check", str(tiny), "--quiet", "--verbose"]) == 0
     err = capsys.readouterr().err
     line = next(t for t in err.splitlines() if t.startswith("timings: "))
     for stage in ("holograms", "predictions", "readouts", "exposure"):
         assert f"{stage} " in line
     out = tmp_path / "exp"
-    assert main(["export", str(seq), "-o", str(out), "--quiet", "--verbose"]) == 0
+    assert main(["export", str(tiny), "-o", str(out), "--quiet", "--verbose"]) == 0
     assert "export " in capsys.readouterr().err
     timings = json.loads((out / "manifest.json").read_text())["timings_s"]
     assert {"holograms", "predictions", "readouts", "exposure", "export"} <= set(timings)

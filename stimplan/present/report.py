@@ -36,10 +36,10 @@ def _fig_to_data_uri(fig, photo: bool = False) -> str:
     (an SLM phase does not compress as PNG)."""
     buf = io.BytesIO()
     if photo:
-        fig.savefig(buf, format="jpeg", dpi=90, bbox_inches="tight", pil_kwargs={"quality": 85})
+        fig.savefig(buf, format="jpeg", dpi=90, pil_kwargs={"quality": 85})
         mime = "image/jpeg"
     else:
-        fig.savefig(buf, format="png", dpi=90, bbox_inches="tight")
+        fig.savefig(buf, format="png", dpi=90)
         mime = "image/png"
     import matplotlib.pyplot as plt
 
@@ -47,9 +47,32 @@ def _fig_to_data_uri(fig, photo: bool = False) -> str:
     return f"data:{mime};base64," + base64.b64encode(buf.getvalue()).decode("ascii")
 
 
-def _extent(grid):
-    x0, x1, y0, y1 = grid.extent_um
-    return (x0, x1, y0, y1)
+#: Samples per axis at most of an image drawn in the report (a panel is about 400
+#: screen pixels wide at the report's 90 dpi).
+DISPLAY_SAMPLES = 600
+
+
+def _display(image, grid, box):
+    """The part of a retinal image inside ``box`` (or all of it) and its extent, reduced
+    by block means to at most :data:`DISPLAY_SAMPLES` per axis (for drawing only: every
+    figure printed is computed on the full image)."""
+    rows, cols = image.shape
+    r0, r1, c0, c1 = 0, rows, 0, cols
+    if box is not None:
+        top, left = grid.index_of(box[0], box[3])
+        bottom, right = grid.index_of(box[1], box[2])
+        r0, r1 = max(int(np.floor(top + 0.5)), 0), min(int(np.ceil(bottom + 0.5)), rows)
+        c0, c1 = max(int(np.floor(left + 0.5)), 0), min(int(np.ceil(right + 0.5)), cols)
+        if r1 <= r0 or c1 <= c0:
+            r0, r1, c0, c1 = 0, rows, 0, cols
+    k = max(-(-(r1 - r0) // DISPLAY_SAMPLES), -(-(c1 - c0) // DISPLAY_SAMPLES), 1)
+    r1, c1 = r0 + (r1 - r0) // k * k, c0 + (c1 - c0) // k * k
+    part = image[r0:r1, c0:c1]
+    if k > 1:
+        part = part.reshape((r1 - r0) // k, k, (c1 - c0) // k, k).mean(axis=(1, 3))
+    x0, y0 = grid.point_of(r0 - 0.5, c0 - 0.5)  # the outer edges of the samples kept
+    x1, y1 = grid.point_of(r1 - 0.5, c1 - 0.5)
+    return part, (x0, x1, y1, y0)
 
 
 def _zoom_box(plan):
@@ -93,11 +116,21 @@ def _stimulus_figures(plan, sp, power_mw: float) -> list[tuple[str, str]]:
 
     fig, axes = plt.subplots(1, 3, figsize=(13, 4.2), layout="constrained")
     ax = axes[0]
-    ax.imshow(sp.target.intensity, extent=_extent(dg), cmap="gray", origin="upper")
+    shown, ext = _display(sp.target.intensity, dg, box)
+    ax.imshow(shown, extent=ext, cmap="gray", origin="upper")
     _outline(ax, plan, color="tab:orange")
     ax.set_title("target (relative)")
     ax = axes[1]
-    im = ax.imshow(sp.hologram.phase_rad, cmap="twilight", vmin=0, vmax=2 * np.pi)
+    phase = sp.hologram.phase_rad
+    step = max(-(-max(phase.shape) // DISPLAY_SAMPLES), 1)  # every step-th pixel: a phase
+    # is not averaged (it wraps)
+    im = ax.imshow(
+        phase[::step, ::step],
+        cmap="twilight",
+        vmin=0,
+        vmax=2 * np.pi,
+        extent=(-0.5, phase.shape[1] - 0.5, phase.shape[0] - 0.5, -0.5),
+    )
     ax.set_title("SLM phase (rad), designed")
     ax.set_xlabel("SLM column")
     ax.set_ylabel("SLM row")
@@ -107,7 +140,8 @@ def _stimulus_figures(plan, sp, power_mw: float) -> list[tuple[str, str]]:
     peak = float(irr.max())
     lit = irr[irr > 0]
     top = float(np.percentile(lit, COLOUR_PERCENTILE)) if lit.size else 1.0
-    im = ax.imshow(irr, extent=_extent(pg), cmap="inferno", origin="upper", vmin=0, vmax=top)
+    shown, ext = _display(irr, pg, box)
+    im = ax.imshow(shown, extent=ext, cmap="inferno", origin="upper", vmin=0, vmax=top)
     _outline(ax, plan)
     ax.plot([0], [0], "c+", ms=10)
     ax.set_title(
