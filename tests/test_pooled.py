@@ -81,3 +81,56 @@ def test_a_uniform_field_against_the_disc_area():
         diag = math.hypot(m * pitch, m * pitch)
         assert b >= e * math.pi * r * r * 1e-6 * (1 - 1e-12)
         assert b <= e * math.pi * (r + 1.5 * diag) ** 2 * 1e-6
+
+
+@pytest.mark.parametrize("name, m", [("speckle", 2), ("spot", 4)])
+def test_centres_outside_the_region_hold_no_more_than_its_rest(name, m):
+    # Source: brute force over a fine lattice of centres (exact disc sums, checked against
+    # scipy quadrature in tests/test_disc_bound.py): outside the box no centre holds more
+    # than the rest reported, and the largest lattice value lies inside.  # common practice
+    n, pitch, r_um = 48, 2.0, 9.0
+    yy, xx = np.mgrid[:n, :n]
+    irr = {
+        "speckle": _speckle(n, 5) * (1.0 + (np.hypot(xx - 20, yy - 26) < 8)),
+        "spot": (np.hypot(xx - 30.2, yy - 12.7) <= 2.5).astype(np.float32) * 40.0,
+    }[name]
+    p = PreparedMap.of(irr, pitch, pitch)
+    c = np.arange(-0.5, n - 0.5 + 1e-9, 0.25)
+    ci, cj = (a.ravel() for a in np.meshgrid(c, c, indexing="ij"))
+    vals = disc_sums_at(p, r_um, cj * pitch, ci * pitch)
+    level = 0.98 * vals.max()
+    rows, cols, rest = PooledMap(irr, pitch, pitch).region(2 * r_um, m, level)
+    assert rows.start % m == 0 and cols.start % m == 0
+    # a centre belongs to the sample whose cell holds it
+    si, sj = (np.clip(np.floor(a + 0.5), 0, n - 1) for a in (ci, cj))
+    inside = (si >= rows.start) & (si < rows.stop) & (sj >= cols.start) & (sj < cols.stop)
+    assert rest < level
+    assert (~inside).any()  # the box leaves part of the map out
+    if (~inside).any():
+        assert vals[~inside].max() <= rest * (1 + 1e-12)
+    assert vals[inside].max() == vals.max()
+
+
+def test_the_windowed_disc_power_map_against_scipy_convolution():
+    # Source: scipy.signal.fftconvolve (float64, mode "same") of the map with the
+    # area-weighted disc kernel: the disc power at every sample centre; the windowed
+    # map must agree inside its box, near the map's edge too, within its round-off bound.
+    from scipy.signal import fftconvolve
+
+    from stimplan.exposure.discs import DiscIntegrator, disc_kernel, kernel_half
+    from stimplan.grid import RetinalGrid
+
+    n, pitch, d = 160, 1.5, 40.0
+    grid = RetinalGrid((n, n), pitch, pitch)
+    irr = _speckle(n, 9) * 3.0
+    integ = DiscIntegrator(grid, d)
+    hy, hx = kernel_half(d, pitch, pitch, n, n)
+    kernel = disc_kernel(d, pitch, pitch, hy, hx).astype(np.float64)
+    ref = fftconvolve(irr.astype(np.float64), kernel, mode="same")
+    a64 = irr.astype(np.float64)
+    l1, l2 = float(a64.sum()), float(np.sqrt(np.sum(a64 * a64)))
+    for rows, cols in [(slice(60, 76), slice(40, 52)), (slice(0, 8), slice(150, 160))]:
+        got, double = integ.window_power_map_mw(irr, d, rows, cols)
+        assert double  # a small box is transformed in float64
+        err = integ.error_bound_mw(l1, l2, d, double=double)
+        assert np.max(np.abs(got - ref[rows, cols])) <= err + 1e-12 * float(ref.max())

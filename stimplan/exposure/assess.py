@@ -173,7 +173,7 @@ class ExposureAssessment:
     notes: tuple[str, ...]
     edition: str = EDITION
     caution: str = field(default=CAUTION_SHORT, repr=False)
-    #: The work done: ``disc_maps`` (full FFT disc-power maps), ``exact_sums`` (exact
+    #: The work done: ``disc_maps`` (FFT disc-power maps), ``exact_sums`` (exact
     #: disc sums at chosen centres), ``angles`` (acceptance angles evaluated).
     work: dict = field(default_factory=dict, repr=False, compare=False)
 
@@ -576,9 +576,11 @@ def assess_sequence(
         "disc centred in each block can reach (and by the peak irradiance times the disc "
         "area), with exact disc sums at the best blocks; where that bound could decide the "
         "result and is more than "
-        f"{CENTRE_TOLERANCE:.1%} above the sum found, by smaller blocks and then by full FFT "
+        f"{CENTRE_TOLERANCE:.1%} above the sum found, by smaller blocks and then by FFT "
         "disc-power maps of the disc grown by a sample diagonal (exact cell areas, a bound "
-        "of their round-off), refined by branch and bound between samples; for the bound, "
+        "of their round-off; computed only over the centres whose block bound reaches the "
+        "value found, in float64 where those are few), refined by branch and bound between "
+        "samples; for the bound, "
         "the largest disc powers of all maps "
         "are taken to fall at one place, with every energy cut to the largest disc energy of "
         "the dose map.",

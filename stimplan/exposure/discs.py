@@ -134,24 +134,90 @@ class DiscIntegrator:
         """Drop the cached kernel spectra."""
         self._kernels.clear()
 
+    def _kernel(self, diameter_um: float) -> np.ndarray:
+        g = self.grid
+        hy, hx = self._kernel_half(diameter_um)
+        kernel = disc_kernel(diameter_um, g.pitch_x_um, g.pitch_y_um, hy, hx)
+        if diameter_um not in self._norms:
+            k64 = kernel.astype(np.float64)
+            self._single[diameter_um] = kernel.size > _SINGLE_KERNEL_CELLS
+            self._norms[diameter_um] = (float(k64.sum()), float(np.sqrt(np.sum(k64 * k64))))
+        return kernel
+
+    def _kernel_norms(self, diameter_um: float) -> tuple[float, float]:
+        if diameter_um not in self._norms:
+            self._kernel(diameter_um)
+        return self._norms[diameter_um]
+
+    def _transform(self, kernel: np.ndarray, diameter_um: float, shape) -> np.ndarray:
+        # a large kernel is transformed in float32 (its round-off, relative to its
+        # small 2-norm, is in error_bound_mw); a small one in float64, rounded once
+        single = self._single[diameter_um]
+        spec = sfft.rfft2(kernel if single else kernel.astype(np.float64), s=shape, workers=-1)
+        return spec.astype(np.complex64, copy=False)
+
     def _kernel_spectrum(self, diameter_um: float, shape) -> tuple[np.ndarray, tuple[int, int]]:
         hit = self._kernels.get(diameter_um)
         if hit is None or hit[0].shape != (shape[0], shape[1] // 2 + 1):
-            g = self.grid
-            hy, hx = self._kernel_half(diameter_um)
-            kernel = disc_kernel(diameter_um, g.pitch_x_um, g.pitch_y_um, hy, hx)
-            # a large kernel is transformed in float32 (its round-off, relative to its
-            # small 2-norm, is in error_bound_mw); a small one in float64, rounded once
-            k64 = kernel.astype(np.float64)
-            single = kernel.size > _SINGLE_KERNEL_CELLS
-            spec = sfft.rfft2(kernel if single else k64, s=shape, workers=-1)
-            hit = (spec.astype(np.complex64, copy=False), kernel.shape)
+            kernel = self._kernel(diameter_um)
+            hit = (self._transform(kernel, diameter_um, shape), kernel.shape)
             self._kernels[diameter_um] = hit
-            self._single[diameter_um] = single
-            self._norms[diameter_um] = (float(k64.sum()), float(np.sqrt(np.sum(k64 * k64))))
         return hit
 
-    def error_bound_mw(self, map_l1: float, map_l2: float, diameter_um: float) -> float:
+    def window_power_map_mw(
+        self,
+        irradiance: np.ndarray,
+        diameter_um: float,
+        rows: slice,
+        cols: slice,
+        spectra: dict | None = None,
+    ) -> np.ndarray:
+        """Disc powers (mW, float64) at the centres of samples ``[rows, cols]`` only,
+        and whether they were computed in float64.
+
+        The same convolution as :meth:`power_map_mw`, on the part of the map
+        that discs centred in the box reach (the box grown by the kernel), so a
+        small box costs a small transform; within the round-off bound of
+        :meth:`error_bound_mw` (``double`` as returned), whose transform length
+        it does not exceed. A transform of at most a quarter of the largest
+        tier's size is done in float64 (its round-off is then negligible and few
+        samples are left near the maximum to sum exactly); a larger one in
+        float32. ``spectra`` keeps the map part's spectrum for other discs of
+        the same box and transform shape.
+        """
+        g = self.grid
+        if self.is_point(diameter_um):
+            return irradiance[rows, cols] * point_area_mm2(diameter_um), True
+        kernel = self._kernel(diameter_um)
+        kh, kw = kernel.shape
+        (r0, r1), (c0, c1) = (rows.start, rows.stop), (cols.start, cols.stop)
+        w0, w1 = max(r0 + kh // 2 - kh + 1, 0), min(r1 + kh // 2, g.rows)
+        v0, v1 = max(c0 + kw // 2 - kw + 1, 0), min(c1 + kw // 2, g.cols)
+        shape = (
+            min(sfft.next_fast_len(w1 - w0 + kh - 1, real=True), self.shape_for(diameter_um)[0]),
+            min(sfft.next_fast_len(v1 - v0 + kw - 1, real=True), self.shape_for(diameter_um)[1]),
+        )
+        largest = self._tiers[-1]
+        double = shape[0] * shape[1] * 4 <= largest[0] * largest[1]
+        spectra = {} if spectra is None else spectra
+        key = (w0, w1, v0, v1, shape, double)
+        spectrum = spectra.get(key)
+        if spectrum is None:
+            spectra.clear()
+            part = irradiance[w0:w1, v0:v1]
+            part = part.astype(np.float64) if double else part
+            spectrum = spectra[key] = sfft.rfft2(part, s=shape, workers=-1)
+        if double:
+            kspec = sfft.rfft2(kernel.astype(np.float64), s=shape, workers=-1)
+        else:
+            kspec = self._transform(kernel, diameter_um, shape)
+        full = sfft.irfft2(spectrum * kspec, s=shape, workers=-1)
+        a, b = r0 + kh // 2 - w0, c0 + kw // 2 - v0
+        return np.array(full[a : a + (r1 - r0), b : b + (c1 - c0)], dtype=np.float64), double
+
+    def error_bound_mw(
+        self, map_l1: float, map_l2: float, diameter_um: float, *, double: bool = False
+    ) -> float:
         """Bound of the float32 round-off of one value of :meth:`power_map_mw`.
 
         ``map_l1`` and ``map_l2`` are the 1- and 2-norms of the map. An FFT of
@@ -164,7 +230,9 @@ class DiscIntegrator:
         kernels of more than :data:`_SINGLE_KERNEL_CELLS` cells; its spectrum's
         error, times the map's spectrum of largest value ``|x|_1``, then back);
         one value's error is at most the 2-norm of the error. A factor of 2 is
-        added.
+        added. With ``double`` (the float64 transforms of
+        :meth:`window_power_map_mw`), ``u = 2^-53`` and the kernel's transform is
+        in float64 too.
 
         References
         ----------
@@ -173,12 +241,11 @@ class DiscIntegrator:
         """
         if self.is_point(diameter_um):
             return 0.0
-        shape = self.shape_for(diameter_um)
-        self._kernel_spectrum(diameter_um, shape)
-        k1, k2 = self._norms[diameter_um]
-        u = 2.0**-24
+        shape = self.shape_for(diameter_um)  # the largest shape a disc is convolved on
+        k1, k2 = self._kernel_norms(diameter_um)
+        u = 2.0**-53 if double else 2.0**-24
         eps = 5.0 * math.log2(shape[0] * shape[1]) * u
-        uk = (eps + u) if self._single[diameter_um] else u
+        uk = (eps + u) if self._single[diameter_um] and not double else u
         return 2.0 * ((2.0 * eps + 2.0 * u) * map_l2 * k1 + uk * map_l1 * k2)
 
     def power_map_mw(

@@ -22,6 +22,7 @@ import numpy as np
 
 from ..grid import RetinalGrid
 from .disc_bound import PreparedMap, bound_over_cells, disc_sums_at, lune_area_mm2
+from .discs import peak_location
 
 __all__ = [
     "CENTRE_TOLERANCE",
@@ -32,6 +33,7 @@ __all__ = [
     "sums_at_samples",
     "sample_bound",
     "whole_map_mw",
+    "windowed_maximum",
 ]
 
 #: Samples summed exactly at most, to settle a maximum the FFT round-off leaves open.
@@ -116,8 +118,13 @@ def bound_between_samples(
         if that search stopped at its budget (the bound still holds).
     """
     d, err, found = diameter_um, err_mw, found_mw
-    # no disc holds more than the whole map (tight once a disc holds all the light)
-    dilated = min(sample_bound(pm, prepared, d + slack_um, err), whole_map_mw(prepared))
+    # no disc holds more than the whole map (tight once a disc holds all the light); the
+    # exact sums near the FFT maximum are needed only if its value plus its round-off
+    # bound is not already within the tolerance
+    whole = whole_map_mw(prepared)
+    dilated = min(float(pm.max()) + err, whole)
+    if dilated > (1.0 + CENTRE_TOLERANCE) * found:
+        dilated = min(sample_bound(pm, prepared, d + slack_um, err), whole)
     at_sample = CentreBound(dilated, found, float(row), float(col), True)
     if dilated <= (1.0 + CENTRE_TOLERANCE) * found:
         return at_sample
@@ -191,3 +198,76 @@ def sample_bound(pm, prepared: PreparedMap, diameter_um: float, err: float) -> f
     if rr.size > MAX_CANDIDATES:
         return top + err
     return float(sums_at_samples(prepared, diameter_um, rr, cc).max())
+
+
+def windowed_maximum(
+    prepared: PreparedMap,
+    diameter_um: float,
+    integ,
+    *,
+    box: tuple[slice, slice, float],
+    map_norms: tuple[float, float],
+    spectra: dict,
+    slack_um: float,
+) -> tuple[CentreBound, int]:
+    """The largest disc power from FFT disc-power maps computed over a box of centres.
+
+    Parameters
+    ----------
+    prepared : PreparedMap
+        The map.
+    diameter_um : float
+        The disc diameter.
+    integ : DiscIntegrator
+        Its :meth:`~stimplan.exposure.discs.DiscIntegrator.window_power_map_mw`
+        and round-off bound.
+    box : (slice, slice, float)
+        ``(rows, cols, rest)`` as from
+        :meth:`stimplan.exposure.pooled.PooledMap.region`: every centre outside
+        the sample box holds at most ``rest`` mW.
+    map_norms : (float, float)
+        The map's 1- and 2-norms.
+    spectra : dict
+        Kept spectra of the map's part (shared by the grown and the plain disc).
+    slack_um : float
+        :func:`centre_slack_um`.
+
+    Returns
+    -------
+    CentreBound, int
+        The bound (at least ``rest``) and the disc-power maps computed. The
+        maps are zero outside the box; :func:`bound_between_samples` refines the
+        grown-disc bound inside it.
+    """
+    rows, cols, rest = box
+    irr = prepared.irradiance
+    f32 = irr if irr.dtype == np.float32 else irr.astype(np.float32)
+    l1, l2 = map_norms
+    d = diameter_um
+    count = [0]
+
+    def inside(diameter):
+        # the map in float32 with its round-off bound: the transform's and the rounding
+        # to float32 (half an ulp of the largest value)
+        count[0] += 1
+        out = np.zeros(prepared.shape, dtype=np.float32)
+        part, double = integ.window_power_map_mw(f32, diameter, rows, cols, spectra)
+        out[rows, cols] = part
+        top = float(np.max(np.abs(part))) if part.size else 0.0
+        return out, integ.error_bound_mw(l1, l2, diameter, double=double) + top * 2.0**-24
+
+    pm, err = inside(d + slack_um)  # the grown disc covers the centres between samples
+    r, c = peak_location(pm)
+    exact = float(sums_at_samples(prepared, d, [r], [c])[0])
+    res = bound_between_samples(
+        pm,
+        prepared,
+        d,
+        slack_um=slack_um,
+        err_mw=err,
+        found_mw=exact,
+        row=r,
+        col=c,
+        plain_map=lambda: inside(d),
+    )
+    return replace(res, bound_mw=max(res.bound_mw, rest)), count[0]

@@ -17,10 +17,10 @@ from .discs import DiscIntegrator, peak_location, point_area_mm2
 from .frames import accumulate_map, load_map
 from .map_maxima import (
     CENTRE_TOLERANCE,
-    bound_between_samples,
     centre_slack_um,
     sums_at_samples,
     whole_map_mw,
+    windowed_maximum,
 )
 from .pooled import PooledMap
 
@@ -87,7 +87,9 @@ class MapSweep:
     a list of disc diameters, each lit map's largest disc power bounded over
     every centre and where it was found: first by block sums
     (:mod:`stimplan.exposure.pooled`), and, with ``refine=True``, by finer
-    blocks and then full FFT disc-power maps until the bound is within
+    blocks and then FFT disc-power maps (over the box of centres whose block
+    bound reaches the value found; float64 where that box is small) until the
+    bound is within
     :data:`CENTRE_TOLERANCE` of an exact sum; :meth:`powers_at` sums each lit
     map's discs exactly at chosen centres.
     """
@@ -96,13 +98,14 @@ class MapSweep:
         self.groups, self.grid, self.cache = groups, grid, cache
         self.progress = progress
         self.loose = 0  # maps and diameters whose bound between samples stayed loose
-        self.disc_maps = 0  # full FFT disc-power maps computed
+        self.disc_maps = 0  # FFT disc-power maps computed (each over its box of centres)
         self.exact_sums = 0  # exact disc sums evaluated
         self.weight_s, self.max_scale, self.overlap = weight_s, max_scale, overlap
         self.dose = np.zeros(grid.shape, dtype=np.float64)
         self.peak = np.zeros(grid.shape, dtype=np.float64)
         self.lit: list[int] = []
         self._held: tuple | None = None  # (group or "dose", PreparedMap, PooledMap, peak index)
+        self._norms: tuple | None = None  # (PreparedMap, 1-norm, 2-norm) of the held map
         self._own: dict = {}  # maxima of maps with no key and of the dose map (_Compact)
         self._spectra: dict = {}
         self._tight_here: set = set()  # (group or "dose", diameter) refined in this run
@@ -114,7 +117,7 @@ class MapSweep:
     def _hold(self, gi):
         """The prepared and pooled forms of one map, kept until another map is read."""
         if self._held is None or self._held[0] != gi:
-            self._held = None
+            self._held = self._norms = None
             irr = self.dose if gi == "dose" else self._read(gi)
             g = self.grid
             prepared = PreparedMap.of(irr, g.pitch_x_um, g.pitch_y_um)
@@ -226,7 +229,10 @@ class MapSweep:
                 if _tight(bound, found):
                     cache[t] = (fr, fc, bound)
                 else:
-                    cache[t] = self._fft_maximum(prepared, d, integ, t, cache)
+                    blocks = _blocks(d / 2.0, pitch)
+                    m = (blocks[1] or blocks[0])[-1]
+                    box = pooled.region(d, m, found)
+                    cache[t] = self._fft_maximum(prepared, d, integ, t, cache, box)
                     if self.progress is not None:
                         self.progress()
             pooled.forget()
@@ -236,37 +242,24 @@ class MapSweep:
                 self._tight_here.add((gi, d))
         return [cache[w][:3] for w in want]
 
-    def _fft_maximum(self, prepared, d, integ, tag, cache) -> tuple[float, float, float]:
-        """The largest disc power from full FFT disc-power maps (grown disc, then branch and
-        bound between samples where that is loose)."""
-        irr = prepared.irradiance
-        f32 = irr if irr.dtype == np.float32 else irr.astype(np.float32)
-        a64 = irr.astype(np.float64, copy=False)
-        l1, l2 = float(a64.sum()), float(np.sqrt(np.sum(a64 * a64)))
-        spectra: dict = self._spectra
-        slack = centre_slack_um(self.grid)
-        dd = d + slack  # the disc grown by a cell diagonal covers centres between samples
-        pm = integ.power_map_mw(f32, dd, spectra)
-        self.disc_maps += 1
-        r, c = peak_location(pm)
-        exact = float(self._sums(prepared, d, [r], [c])[0])
-        err = integ.error_bound_mw(l1, l2, dd)
-
-        def plain(d=d):
-            self.disc_maps += 1
-            return integ.power_map_mw(f32, d, spectra), integ.error_bound_mw(l1, l2, d)
-
-        res = bound_between_samples(
-            pm,
+    def _fft_maximum(self, prepared, d, integ, tag, cache, box) -> tuple[float, float, float]:
+        """The largest disc power from FFT disc-power maps over ``box`` (``(rows, cols,
+        rest)`` of :meth:`PooledMap.region`), by :func:`windowed_maximum`."""
+        if self._norms is None or self._norms[0] is not prepared:
+            a64 = prepared.irradiance.astype(np.float64, copy=False)
+            self._norms = (prepared, float(a64.sum()), float(np.sqrt(np.sum(a64 * a64))))
+            del a64
+        res, maps = windowed_maximum(
             prepared,
             d,
-            slack_um=slack,
-            err_mw=err,
-            found_mw=exact,
-            row=r,
-            col=c,
-            plain_map=plain,
+            integ,
+            box=box,
+            map_norms=self._norms[1:],
+            spectra=self._spectra,
+            slack_um=centre_slack_um(self.grid),
         )
+        self.disc_maps += maps
+        self.exact_sums += 1
         if not res.tight:
             self.loose += 1
             cache[("loose", tag)] = True

@@ -113,8 +113,9 @@ class PooledMap:
         """Drop the kept spectra (block sums stay: they are small)."""
         self._spectra.clear()
 
-    def bound(self, diameter_um: float, m: int) -> PooledBound:
-        """Upper bound (mW) of the disc power of ``diameter_um`` over every centre.
+    def block_bounds_mw(self, diameter_um: float, m: int) -> np.ndarray:
+        """Per block of ``m x m`` samples: upper bound (mW) of the disc power of
+        ``diameter_um`` at every centre in the block, also between samples.
 
         The bound includes the float64 round-off of the pooling (sums of at
         most ``m^2`` terms, Higham §4.2) and of the FFT convolution (Higham
@@ -140,8 +141,14 @@ class PooledMap:
         fft_err = 2.0 * ((2.0 * eps + 2.0 * _U64) * l2 * k1 + _U64 * l1 * k2)
         pool_err = (m * m + 2) * _U64 * l1
         cell_mm2 = self.pitch_x_um * self.pitch_y_um * 1e-6
-        top = float(u.max())
-        bound = (top + fft_err + pool_err) * cell_mm2
+        return (u + (fft_err + pool_err)) * cell_mm2
+
+    def bound(self, diameter_um: float, m: int) -> PooledBound:
+        """Upper bound (mW) of the disc power of ``diameter_um`` over every centre
+        (the largest of :meth:`block_bounds_mw`), with candidate centres."""
+        u = self.block_bounds_mw(diameter_um, m)
+        k = u.shape[1]
+        bound = float(u.max())
         flat = u.ravel()
         c = min(CANDIDATES, flat.size)
         idx = np.argpartition(flat, flat.size - c)[flat.size - c :]
@@ -152,3 +159,23 @@ class PooledMap:
         rr = np.minimum(big_r * m + mid, rows - 1).astype(np.float64)
         cc = np.minimum(big_c * m + mid, cols - 1).astype(np.float64)
         return PooledBound(bound, int(m), rr, cc)
+
+    def region(self, diameter_um: float, m: int, level_mw: float) -> tuple[slice, slice, float]:
+        """Where the largest disc power can reach ``level_mw``: the rows and columns
+        (slices of samples, whole blocks) of the box around every block whose bound
+        reaches it, and the largest bound (mW) of the centres outside that box (0 if
+        none): every centre outside holds at most that.
+        """
+        u = self.block_bounds_mw(diameter_um, m)
+        keep = u >= level_mw
+        rows, cols = self.irradiance.shape
+        if not keep.any():
+            keep = u >= u.max()
+        br = np.flatnonzero(keep.any(axis=1))
+        bc = np.flatnonzero(keep.any(axis=0))
+        i0, i1, j0, j1 = int(br[0]), int(br[-1]) + 1, int(bc[0]), int(bc[-1]) + 1
+        outside = u.copy()
+        outside[i0:i1, j0:j1] = -np.inf
+        rest = float(outside.max()) if outside.size > (i1 - i0) * (j1 - j0) else 0.0
+        box = (slice(i0 * m, min(i1 * m, rows)), slice(j0 * m, min(j1 * m, cols)))
+        return box[0], box[1], max(rest, 0.0)
