@@ -109,6 +109,10 @@ def test_centres_outside_the_region_hold_no_more_than_its_rest(name, m):
     if (~inside).any():
         assert vals[~inside].max() <= rest * (1 + 1e-12)
     assert vals[inside].max() == vals.max()
+    # finer blocks inside the box, with the rest outside, still bound every centre
+    fine = PooledMap(irr, pitch, pitch).bound(2 * r_um, m // 2, (rows, cols, rest))
+    assert fine.bound_mw >= vals.max() * (1 - 1e-12)
+    assert np.all((fine.rows >= rows.start) & (fine.rows < rows.stop))
 
 
 def test_the_windowed_disc_power_map_against_scipy_convolution():

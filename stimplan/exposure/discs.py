@@ -77,6 +77,8 @@ def point_area_mm2(diameter_um: float) -> float:
     return math.pi * (diameter_um * 1e-3) ** 2 / 4.0
 
 
+#: Cells of disc kernels (float32 cell areas) kept across maps, at most (64 MB).
+_KEPT_KERNEL_CELLS = 16_000_000
 #: Kernels with more cells than this are transformed in float32 (their 2-norm is then
 #: small beside their sum, so the added round-off stays far below the tolerances).
 _SINGLE_KERNEL_CELLS = 10_000
@@ -101,6 +103,8 @@ class DiscIntegrator:
         self._kernels: dict[float, tuple[np.ndarray, tuple[int, int]]] = {}
         self._norms: dict[float, tuple[float, float]] = {}
         self._single: dict[float, bool] = {}
+        # disc kernels themselves (cell areas), kept across maps up to a number of cells
+        self._kernel_cells: dict[float, np.ndarray] = {}
 
     def _kernel_half(self, diameter_um: float) -> tuple[int, int]:
         g = self.grid
@@ -135,9 +139,14 @@ class DiscIntegrator:
         self._kernels.clear()
 
     def _kernel(self, diameter_um: float) -> np.ndarray:
+        kept = self._kernel_cells.get(diameter_um)
+        if kept is not None:
+            return kept
         g = self.grid
         hy, hx = self._kernel_half(diameter_um)
         kernel = disc_kernel(diameter_um, g.pitch_x_um, g.pitch_y_um, hy, hx)
+        if sum(k.size for k in self._kernel_cells.values()) + kernel.size <= _KEPT_KERNEL_CELLS:
+            self._kernel_cells[diameter_um] = kernel
         if diameter_um not in self._norms:
             k64 = kernel.astype(np.float64)
             self._single[diameter_um] = kernel.size > _SINGLE_KERNEL_CELLS

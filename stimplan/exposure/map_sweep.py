@@ -33,12 +33,14 @@ FINE_FACTOR = 4
 
 def _blocks(radius_um: float, pitch_um: float) -> tuple[tuple[int, ...], tuple[int, ...]]:
     """Block sizes (coarse, fine) for a disc: powers of 2, the coarse one at most
-    :data:`COARSE_BLOCK` and at most an eighth of the radius."""
+    :data:`COARSE_BLOCK` and at most an eighth of the radius, but at least 2 (blocks of
+    one sample would cost a transform of the whole map in float64: the refinement goes
+    to the disc-power maps over a box instead); the fine one at least 2, or none."""
     m = COARSE_BLOCK
-    while m > 1 and m * pitch_um > radius_um / 8.0:
+    while m > 2 and m * pitch_um > radius_um / 8.0:
         m //= 2
-    fine = max(m // FINE_FACTOR, 1)
-    return (m,), ((fine,) if fine < m else ())
+    fine = m // FINE_FACTOR
+    return (m,), ((fine,) if 2 <= fine < m else ())
 
 
 __all__ = ["MapSweep"]
@@ -143,12 +145,13 @@ class MapSweep:
         self.exact_sums += len(rows)
         return sums_at_samples(prepared, d, rows, cols)
 
-    def _pooled(self, prepared, pooled, peak_at, d, blocks, start=None):
+    def _pooled(self, prepared, pooled, peak_at, d, blocks, start=None, region=None):
         """Bound of the largest disc power from block sums (and the peak and the whole map)
         and the best exact sum at the candidates: ``(row, col, bound, found)``.
 
         ``start`` is an earlier ``(row, col, bound, found)`` of the same map and disc to
-        go on from (its bound and value are kept if better).
+        go on from (its bound and value are kept if better); ``region`` (of
+        :meth:`PooledMap.region`) limits the blocks to its box.
         """
         r = d / 2.0
         if start is None:
@@ -164,7 +167,7 @@ class MapSweep:
         for m in blocks:
             if bound <= (1.0 + CENTRE_TOLERANCE) * found:
                 break
-            pb = pooled.bound(d, m)
+            pb = pooled.bound(d, m, region)
             bound = min(bound, pb.bound_mw)
             rows, cols = [*rows, *pb.rows.tolist()], [*cols, *pb.cols.tolist()]
             vals = self._sums(prepared, d, rows, cols)
@@ -223,16 +226,19 @@ class MapSweep:
                 if not refine or t in cache:
                     continue
                 start = cache[("pooled", t)]
+                coarse, fine = _blocks(d / 2.0, pitch)
+                # the finer blocks, and the disc-power maps, only where the coarse block
+                # bounds reach the value found (every centre elsewhere holds less)
+                region = pooled.region(d, coarse[-1], start[3])
                 fr, fc, bound, found = self._pooled(
-                    prepared, pooled, peak_at, d, _blocks(d / 2.0, pitch)[1], start
+                    prepared, pooled, peak_at, d, fine, start, region
                 )
                 if _tight(bound, found):
                     cache[t] = (fr, fc, bound)
                 else:
-                    blocks = _blocks(d / 2.0, pitch)
-                    m = (blocks[1] or blocks[0])[-1]
-                    box = pooled.region(d, m, found)
-                    cache[t] = self._fft_maximum(prepared, d, integ, t, cache, box)
+                    if fine:
+                        region = pooled.region(d, fine[-1], found, within=region)
+                    cache[t] = self._fft_maximum(prepared, d, integ, t, cache, region)
                     if self.progress is not None:
                         self.progress()
             pooled.forget()

@@ -113,12 +113,16 @@ class PooledMap:
         """Drop the kept spectra (block sums stay: they are small)."""
         self._spectra.clear()
 
-    def block_bounds_mw(self, diameter_um: float, m: int) -> np.ndarray:
+    def block_bounds_mw(
+        self, diameter_um: float, m: int, within: tuple[slice, slice] | None = None
+    ) -> np.ndarray:
         """Per block of ``m x m`` samples: upper bound (mW) of the disc power of
         ``diameter_um`` at every centre in the block, also between samples.
 
-        The bound includes the float64 round-off of the pooling (sums of at
-        most ``m^2`` terms, Higham §4.2) and of the FFT convolution (Higham
+        ``within`` (sample slices, whole blocks) limits the blocks to a box: the
+        convolution is then done on the part of the pooled map their discs
+        reach. The bound includes the float64 round-off of the pooling (sums of
+        at most ``m^2`` terms, Higham §4.2) and of the FFT convolution (Higham
         Thm. 24.2, with a factor of 2 as in
         :meth:`stimplan.exposure.discs.DiscIntegrator.error_bound_mw`).
         """
@@ -126,15 +130,25 @@ class PooledMap:
         kernel = touching_kernel(diameter_um / 2.0, m * self.pitch_x_um, m * self.pitch_y_um)
         kh, kw = kernel.shape
         n, k = b.shape
+        i0, i1, j0, j1 = 0, n, 0, k
+        if within is not None:
+            i0, i1 = within[0].start // m, -(-within[0].stop // m)
+            j0, j1 = within[1].start // m, -(-within[1].stop // m)
+        # the blocks that discs centred in blocks i0..i1 reach (the kernel is symmetric)
+        w0, w1 = max(i0 - kh // 2, 0), min(i1 + kh // 2, n)
+        v0, v1 = max(j0 - kw // 2, 0), min(j1 + kw // 2, k)
+        part = b[w0:w1, v0:v1]
         shape = (
-            sfft.next_fast_len(n + kh - 1, real=True),
-            sfft.next_fast_len(k + kw - 1, real=True),
+            sfft.next_fast_len(part.shape[0] + kh - 1, real=True),
+            sfft.next_fast_len(part.shape[1] + kw - 1, real=True),
         )
-        spec = self._spectra.get((m, shape))
+        key = (m, shape, w0, w1, v0, v1)
+        spec = self._spectra.get(key)
         if spec is None:
-            spec = self._spectra[(m, shape)] = sfft.rfft2(b, s=shape, workers=-1)
+            spec = self._spectra[key] = sfft.rfft2(part, s=shape, workers=-1)
         full = sfft.irfft2(spec * sfft.rfft2(kernel, s=shape, workers=-1), s=shape, workers=-1)
-        u = full[kh // 2 : kh // 2 + n, kw // 2 : kw // 2 + k]
+        a, c = i0 - w0 + kh // 2, j0 - v0 + kw // 2
+        u = full[a : a + (i1 - i0), c : c + (j1 - j0)]
         k1 = float(kernel.sum())
         k2 = math.sqrt(k1)
         eps = 5.0 * math.log2(shape[0] * shape[1]) * _U64
@@ -143,30 +157,56 @@ class PooledMap:
         cell_mm2 = self.pitch_x_um * self.pitch_y_um * 1e-6
         return (u + (fft_err + pool_err)) * cell_mm2
 
-    def bound(self, diameter_um: float, m: int) -> PooledBound:
+    def bound(
+        self, diameter_um: float, m: int, region: tuple[slice, slice, float] | None = None
+    ) -> PooledBound:
         """Upper bound (mW) of the disc power of ``diameter_um`` over every centre
-        (the largest of :meth:`block_bounds_mw`), with candidate centres."""
-        u = self.block_bounds_mw(diameter_um, m)
+        (the largest of :meth:`block_bounds_mw`), with candidate centres.
+
+        ``region`` (from :meth:`region` at a coarser block size, a multiple of
+        ``m``) limits the blocks to its box; its ``rest`` bounds the centres
+        outside and is part of the bound.
+        """
+        within = None if region is None else region[:2]
+        u = self.block_bounds_mw(diameter_um, m, within)
         k = u.shape[1]
         bound = float(u.max())
+        off_r = 0 if within is None else within[0].start // m
+        off_c = 0 if within is None else within[1].start // m
         flat = u.ravel()
-        c = min(CANDIDATES, flat.size)
-        idx = np.argpartition(flat, flat.size - c)[flat.size - c :]
+        # the candidates are taken among the blocks within 2 % of the largest bound (at
+        # least that one): seeds for exact sums, not part of the bound
+        near = np.flatnonzero(flat >= bound - 0.02 * abs(bound))
+        c = min(CANDIDATES, near.size)
+        idx = near[np.argpartition(flat[near], near.size - c)[near.size - c :]]
         idx = idx[np.argsort(flat[idx])[::-1]]
         big_r, big_c = np.divmod(idx, k)
         rows, cols = self.irradiance.shape
         mid = (m - 1) / 2.0
-        rr = np.minimum(big_r * m + mid, rows - 1).astype(np.float64)
-        cc = np.minimum(big_c * m + mid, cols - 1).astype(np.float64)
+        rr = np.minimum((big_r + off_r) * m + mid, rows - 1).astype(np.float64)
+        cc = np.minimum((big_c + off_c) * m + mid, cols - 1).astype(np.float64)
+        if region is not None:
+            bound = max(bound, region[2])
         return PooledBound(bound, int(m), rr, cc)
 
-    def region(self, diameter_um: float, m: int, level_mw: float) -> tuple[slice, slice, float]:
+    def region(
+        self,
+        diameter_um: float,
+        m: int,
+        level_mw: float,
+        within: tuple[slice, slice, float] | None = None,
+    ) -> tuple[slice, slice, float]:
         """Where the largest disc power can reach ``level_mw``: the rows and columns
         (slices of samples, whole blocks) of the box around every block whose bound
         reaches it, and the largest bound (mW) of the centres outside that box (0 if
         none): every centre outside holds at most that.
+
+        ``within`` is a region found at a coarser block size (a multiple of
+        ``m``): only its box is searched, and its ``rest`` is kept.
         """
-        u = self.block_bounds_mw(diameter_um, m)
+        u = self.block_bounds_mw(diameter_um, m, None if within is None else within[:2])
+        off_r = 0 if within is None else within[0].start // m
+        off_c = 0 if within is None else within[1].start // m
         keep = u >= level_mw
         rows, cols = self.irradiance.shape
         if not keep.any():
@@ -177,5 +217,8 @@ class PooledMap:
         outside = u.copy()
         outside[i0:i1, j0:j1] = -np.inf
         rest = float(outside.max()) if outside.size > (i1 - i0) * (j1 - j0) else 0.0
+        if within is not None:
+            rest = max(rest, within[2])
+        i0, i1, j0, j1 = i0 + off_r, i1 + off_r, j0 + off_c, j1 + off_c
         box = (slice(i0 * m, min(i1 * m, rows)), slice(j0 * m, min(j1 * m, cols)))
         return box[0], box[1], max(rest, 0.0)
