@@ -117,11 +117,12 @@ def test_centres_outside_the_region_hold_no_more_than_its_rest(name, m):
 
 def test_the_windowed_disc_power_map_against_scipy_convolution():
     # Source: scipy.signal.fftconvolve (float64, mode "same") of the map with the
-    # area-weighted disc kernel: the disc power at every sample centre; the windowed
+    # disc's exact cell areas: the disc power at every sample centre; the windowed
     # map must agree inside its box, near the map's edge too, within its round-off bound.
     from scipy.signal import fftconvolve
 
-    from stimplan.exposure.discs import DiscIntegrator, disc_kernel, kernel_half
+    from stimplan.exposure.disc_bound import cell_areas_um2
+    from stimplan.exposure.discs import DiscIntegrator, kernel_half
     from stimplan.grid import RetinalGrid
 
     n, pitch, d = 160, 1.5, 40.0
@@ -129,7 +130,8 @@ def test_the_windowed_disc_power_map_against_scipy_convolution():
     irr = _speckle(n, 9) * 3.0
     integ = DiscIntegrator(grid, d)
     hy, hx = kernel_half(d, pitch, pitch, n, n)
-    kernel = disc_kernel(d, pitch, pitch, hy, hx).astype(np.float64)
+    # the exact cell areas (checked against scipy quadrature in tests/test_disc_bound.py)
+    kernel = cell_areas_um2(d / 2.0, pitch, pitch, hy, hx) * 1e-6
     ref = fftconvolve(irr.astype(np.float64), kernel, mode="same")
     a64 = irr.astype(np.float64)
     l1, l2 = float(a64.sum()), float(np.sqrt(np.sum(a64 * a64)))

@@ -77,8 +77,8 @@ def point_area_mm2(diameter_um: float) -> float:
     return math.pi * (diameter_um * 1e-3) ** 2 / 4.0
 
 
-#: Cells of disc kernels (float32 cell areas) kept across maps, at most (64 MB).
-_KEPT_KERNEL_CELLS = 16_000_000
+#: Cells of disc kernels (float64 cell areas) kept across maps, at most (64 MB).
+_KEPT_KERNEL_CELLS = 8_000_000
 #: Kernels with more cells than this are transformed in float32 (their 2-norm is then
 #: small beside their sum, so the added round-off stays far below the tolerances).
 _SINGLE_KERNEL_CELLS = 10_000
@@ -138,20 +138,22 @@ class DiscIntegrator:
         """Drop the cached kernel spectra."""
         self._kernels.clear()
 
-    def _kernel(self, diameter_um: float) -> np.ndarray:
-        kept = self._kernel_cells.get(diameter_um)
-        if kept is not None:
-            return kept
-        g = self.grid
-        hy, hx = self._kernel_half(diameter_um)
-        kernel = disc_kernel(diameter_um, g.pitch_x_um, g.pitch_y_um, hy, hx)
-        if sum(k.size for k in self._kernel_cells.values()) + kernel.size <= _KEPT_KERNEL_CELLS:
-            self._kernel_cells[diameter_um] = kernel
+    def _kernel(self, diameter_um: float, *, double: bool = False) -> np.ndarray:
+        """The disc's cell areas (mm^2): float32 as :func:`disc_kernel`, or, with
+        ``double``, in float64 without that rounding."""
+        k64 = self._kernel_cells.get(diameter_um)
+        if k64 is None:
+            g = self.grid
+            hy, hx = self._kernel_half(diameter_um)
+            k64 = cell_areas_um2(diameter_um / 2.0, g.pitch_x_um, g.pitch_y_um, hy, hx) * 1e-6
+            if sum(k.size for k in self._kernel_cells.values()) + k64.size <= _KEPT_KERNEL_CELLS:
+                self._kernel_cells[diameter_um] = k64
+        kernel = k64.astype(np.float32)  # as disc_kernel
         if diameter_um not in self._norms:
-            k64 = kernel.astype(np.float64)
+            k = kernel.astype(np.float64)
             self._single[diameter_um] = kernel.size > _SINGLE_KERNEL_CELLS
-            self._norms[diameter_um] = (float(k64.sum()), float(np.sqrt(np.sum(k64 * k64))))
-        return kernel
+            self._norms[diameter_um] = (float(k.sum()), float(np.sqrt(np.sum(k * k))))
+        return k64 if double else kernel
 
     def _kernel_norms(self, diameter_um: float) -> tuple[float, float]:
         if diameter_um not in self._norms:
@@ -180,7 +182,7 @@ class DiscIntegrator:
         rows: slice,
         cols: slice,
         spectra: dict | None = None,
-    ) -> np.ndarray:
+    ) -> tuple[np.ndarray, bool]:
         """Disc powers (mW, float64) at the centres of samples ``[rows, cols]`` only,
         and whether they were computed in float64.
 
@@ -188,16 +190,17 @@ class DiscIntegrator:
         that discs centred in the box reach (the box grown by the kernel), so a
         small box costs a small transform; within the round-off bound of
         :meth:`error_bound_mw` (``double`` as returned), whose transform length
-        it does not exceed. A transform of at most a quarter of the largest
-        tier's size is done in float64 (its round-off is then negligible and few
-        samples are left near the maximum to sum exactly); a larger one in
-        float32. ``spectra`` keeps the map part's spectrum for other discs of
-        the same box and transform shape.
+        it does not exceed; in float64 the cell areas are not rounded to float32,
+        in float32 they are, as in :meth:`power_map_mw`. A transform of at
+        most a quarter of the largest tier's size is done in float64 (its
+        round-off is then negligible and few samples are left near the maximum to
+        sum exactly); a larger one in float32. ``spectra`` keeps the map part's
+        spectrum for other discs of the same box and transform shape.
         """
         g = self.grid
         if self.is_point(diameter_um):
             return irradiance[rows, cols] * point_area_mm2(diameter_um), True
-        kernel = self._kernel(diameter_um)
+        kernel = self._kernel(diameter_um, double=True)
         kh, kw = kernel.shape
         (r0, r1), (c0, c1) = (rows.start, rows.stop), (cols.start, cols.stop)
         w0, w1 = max(r0 + kh // 2 - kh + 1, 0), min(r1 + kh // 2, g.rows)
@@ -217,9 +220,9 @@ class DiscIntegrator:
             part = part.astype(np.float64) if double else part
             spectrum = spectra[key] = sfft.rfft2(part, s=shape, workers=-1)
         if double:
-            kspec = sfft.rfft2(kernel.astype(np.float64), s=shape, workers=-1)
+            kspec = sfft.rfft2(kernel, s=shape, workers=-1)
         else:
-            kspec = self._transform(kernel, diameter_um, shape)
+            kspec = self._transform(kernel.astype(np.float32), diameter_um, shape)
         full = sfft.irfft2(spectrum * kspec, s=shape, workers=-1)
         a, b = r0 + kh // 2 - w0, c0 + kw // 2 - v0
         return np.array(full[a : a + (r1 - r0), b : b + (c1 - c0)], dtype=np.float64), double

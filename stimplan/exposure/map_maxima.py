@@ -247,14 +247,16 @@ def windowed_maximum(
     count = [0]
 
     def inside(diameter):
-        # the map in float32 with its round-off bound: the transform's and the rounding
-        # to float32 (half an ulp of the largest value)
+        # the map in float32 with its round-off bound: the transform's, and for a float64
+        # transform the rounding of the result to float32 (half an ulp of the largest
+        # value, with a factor of 2)
         count[0] += 1
         out = np.zeros(prepared.shape, dtype=np.float32)
         part, double = integ.window_power_map_mw(f32, diameter, rows, cols, spectra)
         out[rows, cols] = part
         top = float(np.max(np.abs(part))) if part.size else 0.0
-        return out, integ.error_bound_mw(l1, l2, diameter, double=double) + top * 2.0**-24
+        err = integ.error_bound_mw(l1, l2, diameter, double=double)
+        return out, err + ((top + err) * 2.0**-23 if double else 0.0)
 
     pm, err = inside(d + slack_um)  # the grown disc covers the centres between samples
     r, c = peak_location(pm)
