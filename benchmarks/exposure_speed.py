@@ -8,8 +8,9 @@ also between samples, and every acceptance angle). Prints one line:
 
 ``exposure_over_ifta=<exposure_s / ifta_s> exposure_s=... ifta_s=... disc_maps=...``
 
-``disc_maps`` counts the full FFT disc-power maps the assessment computed (each
-one disc convolution of the map with its neighbouring orders), ``exact_sums``
+``disc_maps`` counts the FFT disc-power maps the assessment computed (each one
+disc convolution over the box of centres that block bounds leave open, on the
+part of the map with its neighbouring orders that those discs reach), ``exact_sums``
 the exact disc sums at candidate centres, ``angles`` the acceptance angles
 evaluated. Block-sum bounds (small FFTs on the pooled map) are not counted.
 """
