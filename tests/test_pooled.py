@@ -140,3 +140,14 @@ def test_the_windowed_disc_power_map_against_scipy_convolution():
         assert double  # a small box is transformed in float64
         err = integ.error_bound_mw(l1, l2, d, double=double)
         assert np.max(np.abs(got - ref[rows, cols])) <= err + 1e-12 * float(ref.max())
+
+
+def test_the_map_norms_bound_numpys_from_above():
+    # Source: numpy's float64 sums (pairwise, Higham 2002, §4.2): the norms feed round-off
+    # bounds, so they may only err high, and by no more than float64 rounding
+    irr = _speckle(96, 11) * 7.0
+    l1, l2 = PooledMap(irr, 1.0, 1.0).norms()
+    a = irr.astype(np.float64)
+    ref1, ref2 = float(np.abs(a).sum()), float(np.sqrt(np.sum(a * a)))
+    assert ref1 <= l1 <= ref1 * (1 + 1e-9)
+    assert ref2 <= l2 <= ref2 * (1 + 1e-9)

@@ -107,7 +107,6 @@ class MapSweep:
         self.peak = np.zeros(grid.shape, dtype=np.float64)
         self.lit: list[int] = []
         self._held: tuple | None = None  # (group or "dose", PreparedMap, PooledMap, peak index)
-        self._norms: tuple | None = None  # (PreparedMap, 1-norm, 2-norm) of the held map
         self._own: dict = {}  # maxima of maps with no key and of the dose map (_Compact)
         self._spectra: dict = {}
         self._tight_here: set = set()  # (group or "dose", diameter) refined in this run
@@ -119,7 +118,7 @@ class MapSweep:
     def _hold(self, gi):
         """The prepared and pooled forms of one map, kept until another map is read."""
         if self._held is None or self._held[0] != gi:
-            self._held = self._norms = None
+            self._held = None
             irr = self.dose if gi == "dose" else self._read(gi)
             g = self.grid
             prepared = PreparedMap.of(irr, g.pitch_x_um, g.pitch_y_um)
@@ -238,7 +237,7 @@ class MapSweep:
                 else:
                     if fine:
                         region = pooled.region(d, fine[-1], found, within=region)
-                    cache[t] = self._fft_maximum(prepared, d, integ, t, cache, region)
+                    cache[t] = self._fft_maximum(prepared, pooled, d, integ, t, cache, region)
                     if self.progress is not None:
                         self.progress()
             pooled.forget()
@@ -248,19 +247,17 @@ class MapSweep:
                 self._tight_here.add((gi, d))
         return [cache[w][:3] for w in want]
 
-    def _fft_maximum(self, prepared, d, integ, tag, cache, box) -> tuple[float, float, float]:
+    def _fft_maximum(
+        self, prepared, pooled, d, integ, tag, cache, box
+    ) -> tuple[float, float, float]:
         """The largest disc power from FFT disc-power maps over ``box`` (``(rows, cols,
         rest)`` of :meth:`PooledMap.region`), by :func:`windowed_maximum`."""
-        if self._norms is None or self._norms[0] is not prepared:
-            a64 = prepared.irradiance.astype(np.float64, copy=False)
-            self._norms = (prepared, float(a64.sum()), float(np.sqrt(np.sum(a64 * a64))))
-            del a64
         res, maps = windowed_maximum(
             prepared,
             d,
             integ,
             box=box,
-            map_norms=self._norms[1:],
+            map_norms=pooled.norms(),
             spectra=self._spectra,
             slack_um=centre_slack_um(self.grid),
         )

@@ -51,6 +51,23 @@ def _pool(a, m, out):  # pragma: no cover - compiled
                 out[big, j // m] += a[i, j]
 
 
+@nb.njit(cache=True, parallel=True, nogil=True)
+def _norms(a):  # pragma: no cover - compiled
+    rows, cols = a.shape
+    s1 = np.zeros(rows)
+    s2 = np.zeros(rows)
+    for i in nb.prange(rows):
+        t1 = 0.0
+        t2 = 0.0
+        for j in range(cols):
+            v = float(a[i, j])
+            t1 += abs(v)
+            t2 += v * v
+        s1[i] = t1
+        s2[i] = t2
+    return s1.sum(), s2.sum()
+
+
 def touching_kernel(radius_um: float, block_x_um: float, block_y_um: float) -> np.ndarray:
     """0/1 kernel of the blocks a disc centred in the middle block can reach.
 
@@ -96,7 +113,8 @@ class PooledMap:
         self.irradiance = np.ascontiguousarray(irradiance)
         self.pitch_x_um, self.pitch_y_um = float(pitch_x_um), float(pitch_y_um)
         self._blocks: dict[int, tuple[np.ndarray, float, float]] = {}
-        self._spectra: dict[tuple[int, tuple[int, int]], np.ndarray] = {}
+        self._spectra: dict[tuple, np.ndarray] = {}
+        self._map_norms: tuple[float, float] | None = None
 
     def blocks(self, m: int) -> tuple[np.ndarray, float, float]:
         """Block sums of ``m x m`` samples (float64) with their 1- and 2-norms."""
@@ -108,6 +126,16 @@ class PooledMap:
             hit = (out, float(out.sum()), float(np.sqrt(np.sum(out * out))))
             self._blocks[m] = hit
         return hit
+
+    def norms(self) -> tuple[float, float]:
+        """The map's 1- and 2-norms (float64 sums of ``rows * cols`` terms, raised by
+        their rounding bound, Higham §4.2: upper bounds)."""
+        if self._map_norms is None:
+            l1, sq = _norms(self.irradiance)
+            rows, cols = self.irradiance.shape
+            up = 1.0 + 2.0 * (rows * cols + 2) * _U64
+            self._map_norms = (l1 * up, math.sqrt(sq * up) * (1.0 + 2.0 * _U64))
+        return self._map_norms
 
     def forget(self) -> None:
         """Drop the kept spectra (block sums stay: they are small)."""
