@@ -175,9 +175,14 @@ def _cell_area(xl, yl, px, py, r):  # pragma: no cover - compiled
 
 @nb.njit(cache=True, nogil=True)
 def _cell_areas(r, px, py, hy, hx, out):  # pragma: no cover - compiled
-    for i in range(2 * hy + 1):
-        for j in range(2 * hx + 1):
-            out[i, j] = _cell_area((j - hx - 0.5) * px, (i - hy - 0.5) * py, px, py, r)
+    # the disc is symmetric about the middle row and column: one quadrant, mirrored
+    for i in range(hy + 1):
+        for j in range(hx + 1):
+            a = _cell_area((j - 0.5) * px, (i - 0.5) * py, px, py, r)
+            out[hy + i, hx + j] = a
+            out[hy - i, hx + j] = a
+            out[hy + i, hx - j] = a
+            out[hy - i, hx - j] = a
 
 
 def cell_areas_um2(

@@ -107,6 +107,7 @@ class MapSweep:
         self.peak = np.zeros(grid.shape, dtype=np.float64)
         self.lit: list[int] = []
         self._held: tuple | None = None  # (group or "dose", PreparedMap, PooledMap, peak index)
+        self._last: tuple | None = None  # (group, map) of the last map accumulate read
         self._own: dict = {}  # maxima of maps with no key and of the dose map (_Compact)
         self._spectra: dict = {}
         self._tight_here: set = set()  # (group or "dose", diameter) refined in this run
@@ -119,7 +120,13 @@ class MapSweep:
         """The prepared and pooled forms of one map, kept until another map is read."""
         if self._held is None or self._held[0] != gi:
             self._held = None
-            irr = self.dose if gi == "dose" else self._read(gi)
+            if gi == "dose":
+                irr = self.dose
+            elif self._last is not None and self._last[0] == gi:
+                irr = self._last[1]  # the map accumulate read last: not built a second time
+            else:
+                irr = self._read(gi)
+            self._last = None
             g = self.grid
             prepared = PreparedMap.of(irr, g.pitch_x_um, g.pitch_y_um)
             pooled = PooledMap(prepared.irradiance, g.pitch_x_um, g.pitch_y_um)
@@ -139,6 +146,7 @@ class MapSweep:
             accumulate_map(self.dose, self.peak, irr, weight, scale, self.overlap, lit)
             if self._lit_frames(gi) and bool(lit[0]):
                 self.lit.append(gi)
+            self._last = (gi, irr)
 
     def _sums(self, prepared, d, rows, cols) -> np.ndarray:
         self.exact_sums += len(rows)
