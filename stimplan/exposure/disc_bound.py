@@ -84,14 +84,23 @@ def summed_area_table(irradiance: np.ndarray) -> np.ndarray:
     return out
 
 
-@nb.njit(cache=True, nogil=True)
+@nb.njit(cache=True, nogil=True, parallel=True)
 def _sat(a, out):  # pragma: no cover - compiled
+    # row prefix sums, then each column's running sum of them: the same additions, in
+    # the same order, as one serial pass (the rounding bound is unchanged)
     rows, cols = a.shape
-    for i in range(rows):
+    for i in nb.prange(rows):
         acc = 0.0
         for j in range(cols):
             acc += a[i, j]
-            out[i + 1, j + 1] = out[i, j + 1] + acc
+            out[i + 1, j + 1] = acc
+    chunk = 512
+    for c in nb.prange((cols + chunk - 1) // chunk):
+        j0 = 1 + c * chunk
+        j1 = min(j0 + chunk, cols + 1)
+        for i in range(1, rows + 1):
+            for j in range(j0, j1):
+                out[i, j] += out[i - 1, j]
 
 
 @dataclass(frozen=True, eq=False)
