@@ -36,7 +36,7 @@ STAGES = [
     {"implant"},
     {"stimuli"},
     {"exposure"},
-    {"comparison", "legibility", "gain", "budget"},
+    {"comparison", "legibility", "gain", "budget", "tolerance"},
     {"sequence"},
     {"plan"},
     {"present"},

@@ -145,11 +145,14 @@ class Hologram:
         oversample: int = 2,
         workers: int = -1,
         signal_region: np.ndarray | None = None,
+        focus_error_rad: np.ndarray | None = None,
     ) -> RetinalPrediction:
         """Predicted retina for this hologram on ``system``.
 
         The signal region of the power account is the target's lit area
         (``signal_region``, if the caller has it on the prediction grid already).
+        ``focus_error_rad`` is the phase of an error of the eye's focus
+        (:func:`stimplan.optics.aberration.focus_error_phase_rad`).
         """
         lut = grey_map_for(system.slm)
         if signal_region is None:
@@ -162,6 +165,7 @@ class Hologram:
             system,
             oversample=oversample,
             signal_region=region,
+            focus_error_rad=focus_error_rad,
             workers=workers,
         )
 

@@ -342,6 +342,7 @@ def predict_retina(
     *,
     oversample: int = 2,
     signal_region: np.ndarray | None = None,
+    focus_error_rad: np.ndarray | None = None,
     workers: int = -1,
 ) -> RetinalPrediction:
     """Predict retinal irradiance for a phase pattern shown on the SLM.
@@ -404,11 +405,16 @@ def predict_retina(
 
     lens = system.fresnel_phase_rad()
     corr = system.illumination.correction_phase_rad(slm)
+    err = None
+    if focus_error_rad is not None:
+        err = validate.finite_array("focus_error_rad", focus_error_rad, shape=slm.shape)
     mod_phase = phase
     if lens is not None:
         mod_phase = mod_phase - lens
     if corr is not None:
         mod_phase = mod_phase - corr
+    if err is not None:
+        mod_phase = mod_phase + err
     power_mod = _far_power(amp, mod_phase, pupil, padded, env_r, env_c, 1.0 - z, workers)
     region = None
     if signal_region is not None:
@@ -422,12 +428,14 @@ def predict_retina(
     zero_pre = 0.0
     if z > 0:
         zphase = None
-        if lens is not None or corr is not None:
+        if lens is not None or corr is not None or err is not None:
             zphase = np.zeros(slm.shape, np.float32)
             if lens is not None:
                 zphase -= lens
             if corr is not None:
                 zphase -= corr
+            if err is not None:
+                zphase += err
         power_zero = _far_power(amp, zphase, pupil, padded, env_r, env_c, z, workers)
         zero_pre = float(power_zero.sum(dtype=np.float64))
         field_mw_pre, signal_pre = (
