@@ -34,7 +34,12 @@ from . import validate
 from .errors import ConfigError
 from .grid import RetinalGrid
 from .implant.target import implant_target
-from .optics.aberration import FocusError, blur_diameter_um, focus_error_phase_rad
+from .optics.aberration import (
+    FocusError,
+    blur_diameter_um,
+    depth_to_defocus_d,
+    focus_error_phase_rad,
+)
 
 __all__ = [
     "ToleranceRanges",
@@ -86,6 +91,10 @@ class ToleranceRanges:
     magnification_error : float
         Largest relative error of the image's scale on the implant (tried at
         ±value), in [0, 0.5).
+    robust_design : bool
+        Design implant-aware holograms for these ranges: the ON pixels' light
+        is aimed at the photodiodes' cores, shrunk by the geometric blur of
+        :meth:`design_defocus_d` (:func:`robust_implant_target`).
     """
 
     defocus_d: float | tuple[float, float] = 0.0
@@ -93,6 +102,7 @@ class ToleranceRanges:
     depth_um: float | tuple[float, float] = 0.0
     shift_um: float = 0.0
     magnification_error: float = 0.0
+    robust_design: bool = False
 
     def __post_init__(self) -> None:
         set_ = object.__setattr__
@@ -111,10 +121,29 @@ class ToleranceRanges:
                 "tolerance.magnification_error", self.magnification_error, lo=0, hi=0.5
             ),
         )
+        set_(self, "robust_design", validate.boolean("tolerance.robust_design", self.robust_design))
         if self.magnification_error >= 0.5:
             raise ConfigError(
                 "tolerance.magnification_error", self.magnification_error, "in [0, 0.5)"
             )
+
+    def design_defocus_d(self, eye_focal_mm: float) -> float:
+        """The largest blur of the ranges as a defocus, dioptres: the largest spherical
+        error plus the depth's share (:func:`depth_to_defocus_d`) plus the cylinder."""
+        sph = max(abs(v) for v in self.defocus_d)
+        dep = max(abs(depth_to_defocus_d(v, eye_focal_mm)) for v in self.depth_um)
+        return sph + dep + self.cylinder_d
+
+    def to_dict(self) -> dict:
+        """The ranges in the layout of the ``[tolerance]`` table."""
+        return {
+            "defocus_d": list(self.defocus_d),
+            "cylinder_d": self.cylinder_d,
+            "depth_um": list(self.depth_um),
+            "shift_um": self.shift_um,
+            "magnification_error": self.magnification_error,
+            "robust_design": self.robust_design,
+        }
 
     def focus_errors(self) -> list[FocusError]:
         """The focusing errors tried: each end of the spherical ranges (and 0 inside
@@ -316,7 +345,7 @@ def robust_implant_target(
     blurred by that much still lands on its photodiode. The pixels that are ON
     are those of the real implant.
     """
-    d = validate.number("tolerance.defocus_d", defocus_d, lo=-30, hi=30)
+    d = validate.number("tolerance.defocus_d", defocus_d, lo=-100, hi=100)
     blur = blur_diameter_um(system.beam_diameter_at_pupil_mm, d, system.eye.focal_length_mm)
     return implant_target(
         intensity,

@@ -6,7 +6,9 @@ assessment. The others cost as much again each, so they are explicit calls:
 * :func:`mask_exposure` - the timeline through the amplitude mask at the same
   laser powers, or (``equal_irradiance=True``) at the powers that give the ON
   pixels the holograms' irradiance;
-* :func:`stimulus_exposures` - each hologram's frames on their own.
+* :func:`stimulus_exposures` - each hologram's frames on their own;
+* :func:`stimulus_tolerances` - each hologram's per-pixel powers over the
+  ``[tolerance]`` ranges (a prediction per focusing error).
 
 Each result is kept in the plan's ``evaluations`` and shared by later calls
 (the summary, the report, the export and the plugin ask for the same ones).
@@ -14,12 +16,16 @@ Each result is kept in the plan's ``evaluations`` and shared by later calls
 
 from __future__ import annotations
 
+from dataclasses import replace
+
 from ..errors import ConfigError
 from ..exposure import ExposureAssessment
+from ..tolerance import ToleranceResult, analyse_tolerance
 from .progress import stage_ticker
+from .spool import REFERENCE_POWER_MW
 from .wiring import assess_frames
 
-__all__ = ["mask_exposure", "stimulus_exposures", "max_laser_power_mw"]
+__all__ = ["mask_exposure", "stimulus_exposures", "stimulus_tolerances", "max_laser_power_mw"]
 
 
 def _assess(plan, stage: str, frames, which: str, power_of=None):
@@ -88,6 +94,42 @@ def stimulus_exposures(plan) -> dict[int, ExposureAssessment]:
         return out
 
     return _kept(plan, "stimuli", compute)
+
+
+def stimulus_tolerances(plan) -> dict[int, ToleranceResult]:
+    """Tolerance analysis of each hologram at 1 mW of laser power, by hologram index
+    (:func:`stimplan.tolerance.analyse_tolerance` over the sequence's ``[tolerance]``
+    ranges); empty without ranges, an implant or ON pixels."""
+
+    def compute():
+        spec = plan.spec
+        if spec.tolerance is None or spec.implant is None:
+            return {}
+        # at the plan's reference power, as every per-hologram figure of the plan
+        ill = replace(spec.system.illumination, power_mw=REFERENCE_POWER_MW)
+        system = replace(spec.system, illumination=ill)
+        out = {}
+        tick = stage_ticker(plan.progress, "tolerance")
+        try:
+            for sp in plan.holograms:
+                if sp.on is None or not sp.on.any():
+                    continue
+                out[sp.hologram_index] = analyse_tolerance(
+                    sp.hologram,
+                    system,
+                    spec.implant,
+                    sp.on,
+                    ranges=spec.tolerance,
+                    oversample=spec.oversample,
+                    progress=tick,
+                )
+        finally:
+            close = getattr(plan.progress, "close", None)
+            if close is not None:
+                close()
+        return out
+
+    return _kept(plan, "tolerance", compute)
 
 
 def max_laser_power_mw(plan, which: str = "hologram") -> float:

@@ -27,6 +27,7 @@ from ..reuse import (
     translation_between,
     verify_translation,
 )
+from ..tolerance import robust_implant_target
 from .model import StimulusPlan
 from .spool import (
     REFERENCE_POWER_MW,
@@ -38,7 +39,17 @@ __all__ = ["Job", "plan_jobs", "task_function"]
 def _build_target(stim, spec, grid, design=None, *, name: str = "stimulus") -> Target:
     design = stim.render(grid) if design is None else design
     if spec.implant is not None and spec.implant_aware:
+        tol = spec.tolerance
         try:
+            if tol is not None and tol.robust_design:
+                return robust_implant_target(
+                    design,
+                    grid,
+                    spec.implant,
+                    spec.system,
+                    defocus_d=tol.design_defocus_d(spec.system.eye.focal_length_mm),
+                    threshold=spec.on_threshold,
+                )
             return implant_target(design, grid, spec.implant, threshold=spec.on_threshold)
         except ConfigError as exc:  # name the stimulus of the file, and the way out
             raise ConfigError(

@@ -25,7 +25,14 @@ from ..budget import BUDGET_LABELS
 from ..cautions import CAUTIONS, EDITION
 from ..errors import ConfigError
 from ..plan.evaluate import mask_exposure, max_laser_power_mw
-from .summary import budget_text, mask_entry, stimulus_rows, stimulus_view, view_text
+from .summary import (
+    budget_text,
+    mask_entry,
+    stimulus_rows,
+    stimulus_view,
+    tolerance_text,
+    view_text,
+)
 from .view_figure import VIEW_TITLE, view_figure
 
 __all__ = ["render_report", "write_report"]
@@ -496,6 +503,10 @@ def render_report(plan) -> str:
             rows.append(("light budget", budget_text(row["light_budget"])))
         if spec.implant is not None:
             rows.append(("implant's view", view_text(row["implant_view"])))
+        if spec.tolerance is not None:
+            rows.append(
+                ("tolerance (worst pixels over the ranges)", tolerance_text(row["tolerance"]))
+            )
         parts.append(_table(rows))
         for w in row["warnings"]:
             parts.append(f"<p class='warning'>{html.escape(w)}</p>")

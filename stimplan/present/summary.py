@@ -15,7 +15,12 @@ from ..errors import ConfigError
 from ..implant import implant_view, stimulation_threshold
 from ..legibility import legibility
 from ..plan import REFERENCE_POWER_MW
-from ..plan.evaluate import mask_exposure, max_laser_power_mw, stimulus_exposures
+from ..plan.evaluate import (
+    mask_exposure,
+    max_laser_power_mw,
+    stimulus_exposures,
+    stimulus_tolerances,
+)
 from .export import json_safe
 
 __all__ = [
@@ -27,6 +32,8 @@ __all__ = [
     "stimulus_view",
     "view_entry",
     "view_text",
+    "tolerance_entry",
+    "tolerance_text",
 ]
 
 
@@ -60,6 +67,71 @@ def view_entry(plan, sp, power_mw: float) -> dict | None:
     except ConfigError as exc:
         return {"threshold_mw_per_mm2": None, "refused": str(exc)}
     return None if view is None else {"laser_power_mw": power_mw, **view.as_dict()}
+
+
+def tolerance_entry(plan, sp, power_mw: float) -> dict | None:
+    """The `check --json` entry of the tolerance analysis at the entry's laser power
+    (None without ``[tolerance]``, an implant, ON pixels or a lit frame)."""
+    if power_mw <= 0:
+        return None
+    res = stimulus_tolerances(plan).get(sp.hologram_index)
+    if res is None:
+        return None
+    k = power_mw / REFERENCE_POWER_MW
+
+    def case(c):
+        if c is None:
+            return None
+        d = c.as_dict()
+        d["on_min_uw"] *= k
+        d["off_max_uw"] *= k
+        return d
+
+    return {
+        "laser_power_mw": power_mw,
+        "ranges": res.ranges.to_dict(),
+        "cases": len(res.cases),
+        "nominal": case(res.nominal),
+        "worst_on": case(res.worst_on),
+        "worst_off": case(res.worst_off),
+        "on_retained": res.on_retained,
+    }
+
+
+def _case_text(c: dict) -> str:
+    parts = [
+        f"{label} {c[key]:+.3g} {unit}"
+        for key, label, unit in (
+            ("defocus_d", "defocus", "D"),
+            ("depth_um", "depth", "µm"),
+            ("cylinder_d", "cylinder", "D"),
+        )
+        if c[key]
+    ]
+    if c["cylinder_d"]:
+        parts[-1] += f" at {c['cylinder_axis_deg']:g}°"
+    if c["shift_x_um"] or c["shift_y_um"]:
+        parts.append(f"shift ({c['shift_x_um']:+.3g}, {c['shift_y_um']:+.3g}) µm")
+    if c["magnification_error"]:
+        parts.append(f"scale {c['magnification_error']:+.1%}")
+    return ", ".join(parts) or "in focus, as placed"
+
+
+def tolerance_text(entry: dict | None) -> str:
+    """One line of the tolerance entry: the worst ON and OFF pixels and where."""
+    if entry is None:
+        return "none (no [tolerance], implant or lit frame)"
+    n, w, o = entry["nominal"], entry["worst_on"], entry["worst_off"]
+    text = (
+        f"worst ON pixel {w['on_min_uw']:.3g} µW ({entry['on_retained']:.0%} of "
+        f"{n['on_min_uw']:.3g} µW in focus) at {_case_text(w)}"
+    )
+    if o is not None:
+        text += (
+            f"; worst OFF pixel {o['off_max_uw']:.3g} µW ({n['off_max_uw']:.3g} µW in focus) "
+            f"at {_case_text(o)}"
+        )
+    return text + f"; {entry['cases']} cases at {entry['laser_power_mw']:.3g} mW"
 
 
 def stimulus_rows(plan) -> list[dict]:
@@ -114,6 +186,8 @@ def stimulus_rows(plan) -> list[dict]:
                 "warnings": [] if leg is None else list(leg.warnings),
                 # each pixel's photodiode irradiance against the implant's threshold range
                 "implant_view": view_entry(plan, sp, power),
+                # per-pixel powers over the [tolerance] ranges (defocus, shift, ...)
+                "tolerance": tolerance_entry(plan, sp, power),
             }
         )
     return rows
@@ -288,6 +362,9 @@ def print_table(plan, file=None) -> None:
             print(f"legibility: {w}", file=file)
     for r in s["stimuli"]:
         print(f"implant's view, {r['name']}: {view_text(r['implant_view'])}", file=file)
+    for r in s["stimuli"]:
+        if r["tolerance"] is not None:
+            print(f"tolerance, {r['name']}: {tolerance_text(r['tolerance'])}", file=file)
     if e["edition"]:
         print(f"limits: {e['edition']}", file=file)
     print("CAUTION: " + CAUTIONS, file=file)

@@ -14,6 +14,7 @@ from ..baseline import MASK_PRESETS
 from ..errors import ConfigError
 from ..exposure import check_wavelength
 from ..optics.system import Eye, Illumination, OpticalSystem
+from ..tolerance import ToleranceRanges
 from .keys import (
     MAX_DOTS_PER_LINE,
     MAX_FILE_BYTES,
@@ -276,6 +277,9 @@ def _assemble(
     protocol = None
     if "limits" in raw:
         protocol = read_section(report, raw, "limits", make_limits, "protocol")
+    tolerance = None
+    if "tolerance" in raw:
+        tolerance = read_section(report, raw, "tolerance", ToleranceRanges, "tolerance")
     shuffle, repeats = read_order(report, raw)
     # With a broken [eye] or [implant] (already reported), stand-ins let the
     # stimuli's own values be checked; the specification is not built anyway.
@@ -306,6 +310,7 @@ def _assemble(
         on_threshold=holo["on_threshold"],
         mask=mask if mask is not None else MASK_PRESETS["lcd"],
         protocol=protocol,
+        tolerance=tolerance,
         shuffle=shuffle,
         repeats=repeats,
         source_path=source,

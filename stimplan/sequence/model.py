@@ -16,6 +16,7 @@ from ..holography.ifta import IftaSettings
 from ..implant import Implant
 from ..optics.system import OpticalSystem
 from ..stimuli.base import Stimulus
+from ..tolerance import ToleranceRanges
 from .keys import (
     FORMAT,
     IRRADIANCE_BASES,
@@ -268,6 +269,9 @@ class SequenceSpec:
         The amplitude-mask projector of the comparison.
     protocol : ProtocolCap or None
         Caps of the user's own protocol.
+    tolerance : ToleranceRanges or None
+        Ranges of the tolerance analysis (``[tolerance]``), and whether the
+        implant-aware holograms are designed to survive their defocus.
     shuffle : bool
         Shuffle the step order (from ``seed``).
     repeats : int
@@ -291,6 +295,7 @@ class SequenceSpec:
     on_threshold: float = 0.5
     mask: AmplitudeMask = field(default_factory=lambda: MASK_PRESETS["lcd"])
     protocol: ProtocolCap | None = None
+    tolerance: ToleranceRanges | None = None
     shuffle: bool = False
     repeats: int = 1
     source_path: str | None = field(default=None, compare=False)
@@ -312,6 +317,16 @@ class SequenceSpec:
             raise ConfigError("implant", self.implant, "an Implant or None")
         if self.protocol is not None and not isinstance(self.protocol, ProtocolCap):
             raise ConfigError("limits", self.protocol, "a ProtocolCap or None")
+        if self.tolerance is not None:
+            if not isinstance(self.tolerance, ToleranceRanges):
+                raise ConfigError("tolerance", self.tolerance, "a ToleranceRanges or None")
+            if self.tolerance.robust_design and not self.implant_aware:
+                raise ConfigError(
+                    "tolerance.robust_design",
+                    True,
+                    "false without an implant-aware hologram",
+                    "the robust design aims light at the photodiodes' cores",
+                )
         f(self, "steps", tuple(self.steps))
         if not self.steps:
             raise ConfigError("steps", self.steps, "one step or more")
@@ -373,6 +388,8 @@ class SequenceSpec:
         out["mask"] = _asdict_set(self.mask)
         if self.protocol is not None:
             out["limits"] = _asdict_set(self.protocol)
+        if self.tolerance is not None:
+            out["tolerance"] = self.tolerance.to_dict()
         out["order"] = {"shuffle": self.shuffle, "repeats": self.repeats}
         out["stimuli"] = {k: st.to_dict() for k, st in self.stimuli.items() if ":" not in k}
         out["steps"] = [step.to_dict() for step in self.steps]

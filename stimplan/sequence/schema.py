@@ -189,6 +189,18 @@ class LimitsTable(_Table):
     source: str | None = None
 
 
+class ToleranceTable(_Table):
+    """``[tolerance]``: the ranges of a tolerance analysis
+    (:class:`stimplan.tolerance.ToleranceRanges`) and the robust design."""
+
+    defocus_d: Any = None  # a half-width or a pair; checked by ToleranceRanges
+    cylinder_d: float | None = Field(default=None, strict=False)
+    depth_um: Any = None  # a half-width or a pair
+    shift_um: float | None = Field(default=None, strict=False)
+    magnification_error: float | None = Field(default=None, strict=False)
+    robust_design: bool | None = None
+
+
 class OrderTable(_Table):
     """``[order]``: file order or shuffled, and whole-sequence repeats."""
 
@@ -239,6 +251,7 @@ class SequenceFile(_Table):
     hologram: HologramTable | None = None
     mask: MaskTable | None = None
     limits: LimitsTable | None = None
+    tolerance: ToleranceTable | None = None
     order: OrderTable | None = None
     stimuli: dict[str, StimulusTable] = Field(
         description="a [stimuli.<name>] table for each stimulus",
