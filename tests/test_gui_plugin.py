@@ -77,6 +77,7 @@ def test_stimulus_panel_computes_layers_in_micrometres(make_napari_viewer, qtbot
     panel.param_widgets["diameter_um"].value = 400.0
     panel.method.value = "mraf"
     panel.iterations.value = 15
+    panel.defocus_d.value = 3.0  # a tolerance analysis over ±3 D
     panel.compute.native.click()
     assert panel.busy  # the work runs in a worker thread: the click returned at once
     qtbot.waitUntil(lambda: panel.result is not None and not panel.busy, timeout=60000)
@@ -138,6 +139,9 @@ def test_stimulus_panel_computes_layers_in_micrometres(make_napari_viewer, qtbot
     on_uw = res.pixel_power_uw[res.on].mean()
     assert row[cols.index("ON pixel, hologram (µW)")] == f"{on_uw:.3g}"
     assert row[cols.index("legibility")] == "ok"  # a 400 µm spot on 55 µm pixels
+    # the tolerance column: the worst ON pixel over -3, 0, +3 D
+    assert row[cols.index("tolerance")].startswith("worst ON pixel"), row[cols.index("tolerance")]
+    assert "3 cases" in row[cols.index("tolerance")]
     assert "not a safety approval" in readout.figures.value  # the cautions go with it
     assert "not a safety approval" in readout.verdict.value
 

@@ -77,3 +77,26 @@ def test_a_bad_range_names_its_key_and_line(tmp_path):
     p.write_text(gui_sequence(power=0.5, limits="[tolerance]\ndefocus_d = [2.0, 1.0]\n"))
     with pytest.raises(StimplanError, match=r"tolerance\.defocus_d"):
         load_sequence(p)
+
+
+def test_the_report_shows_the_tolerance(with_tolerance, tmp_path):
+    out = tmp_path / "report.html"
+    assert main(["report", str(with_tolerance), "-o", str(out), "--quiet"]) == 0
+    html = out.read_text()
+    assert "tolerance (worst pixels over the ranges)" in html
+    assert "worst ON pixel" in html
+
+
+def test_robust_design_aims_at_smaller_cores(tmp_path):
+    # common practice: aiming at the photodiodes' cores lights fewer samples than aiming
+    # at the whole photodiodes (the same ON pixels)
+    lit = {}
+    for robust in (False, True):
+        p = tmp_path / f"r{robust}.toml"
+        extra = TOLERANCE + f"robust_design = {str(robust).lower()}\n"
+        p.write_text(gui_sequence(power=0.5, limits=extra))
+        with plan_sequence(load_sequence(p), progress=False) as plan:
+            sp = plan.holograms[0]
+            lit[robust] = (float(sp.target.intensity.sum()), sp.on.copy())
+    assert lit[True][0] < lit[False][0]
+    np.testing.assert_array_equal(lit[True][1], lit[False][1])

@@ -32,6 +32,7 @@ from stimplan.stimuli import (
     stimulus_from_dict,
 )
 from stimplan.stimuli.base import STIMULUS_KINDS
+from stimplan.tolerance import ToleranceRanges
 
 __all__ = [
     "OPTICS_PRESETS",
@@ -170,6 +171,13 @@ class StimulusRequest:
         photodiodes the laser power is set to (needs an implant).
     pulse_ms, rate_hz, train_ms : float
         The pulse train the exposure estimate assumes.
+    defocus_d : float
+        Tolerance analysis over ±this defocus of the eye, dioptres (0: none).
+    shift_um : float
+        Tolerance analysis over lateral shifts of the image up to this, µm (0: none).
+    robust_design : bool
+        Design the implant-aware hologram to keep its ON power over the defocus
+        (:func:`stimplan.tolerance.robust_implant_target`).
     """
 
     optics: str
@@ -186,6 +194,9 @@ class StimulusRequest:
     pulse_ms: float = 10.0
     rate_hz: float = 20.0
     train_ms: float = 1000.0
+    defocus_d: float = 0.0
+    shift_um: float = 0.0
+    robust_design: bool = False
 
 
 @dataclass(frozen=True, eq=False)
@@ -291,9 +302,17 @@ def _one_step_spec(request: StimulusRequest):
         power_mw=None if target is not None else power,
         irradiance_mw_per_mm2=target,
     )
+    tolerance = None
+    if request.defocus_d or request.shift_um or request.robust_design:
+        tolerance = ToleranceRanges(
+            defocus_d=request.defocus_d,
+            shift_um=request.shift_um,
+            robust_design=request.robust_design,
+        )
     return replace(
         base,
         title=f"{request.kind} on {request.optics}",
+        tolerance=tolerance,
         seed=request.seed,
         system=system,
         implant=implant,

@@ -14,7 +14,7 @@ from napari.utils.notifications import show_warning
 
 from stimplan.cautions import CAUTION_SHORT, CAUTIONS
 from stimplan.plan.evaluate import stimulus_exposures
-from stimplan.present.summary import plan_summary, view_text
+from stimplan.present.summary import plan_summary, tolerance_text, view_text
 
 from ._layers import EXPORT_KEY
 
@@ -59,6 +59,9 @@ class StimulusFigures:
     implant_view : str
         The implant's view: ON pixels under and OFF pixels over the threshold range,
         or why there is none (:func:`stimplan.present.summary.view_text`).
+    tolerance : str
+        The worst ON and OFF pixels over the tolerance ranges, or "-" without
+        ranges (:func:`stimplan.present.summary.tolerance_text`).
     """
 
     name: str
@@ -70,6 +73,7 @@ class StimulusFigures:
     verdict: str | None
     warnings: tuple[str, ...] = ()
     implant_view: str = "-"
+    tolerance: str = "-"
 
     @property
     def gain_over_mask(self) -> float | None:
@@ -149,6 +153,7 @@ def readout_from_plan(plan, title: str | None = None) -> Readout:
             verdict=row["verdict"],
             warnings=tuple(row["warnings"]),
             implant_view=view_text(row["implant_view"]),
+            tolerance="-" if row["tolerance"] is None else tolerance_text(row["tolerance"]),
         )
         for row in summary["stimuli"]
     ]
@@ -191,6 +196,7 @@ TABLE_COLUMNS = (
     "verdict",
     "legibility",
     "implant's view",
+    "tolerance",
 )
 
 
@@ -211,6 +217,7 @@ def readout_table(r: Readout | None) -> tuple[tuple[str, ...], list[list[str]]]:
                 s.verdict or "-",
                 "; ".join(s.warnings) or "ok",
                 s.implant_view,
+                s.tolerance,
             ]
         )
     return TABLE_COLUMNS, rows
@@ -237,6 +244,8 @@ def readout_text(r: Readout, *, stimuli: bool = True) -> str:
             )
             lines += [f"  legibility: {w}" for w in s.warnings]
             lines.append(f"  implant's view: {s.implant_view}")
+            if s.tolerance != "-":
+                lines.append(f"  tolerance: {s.tolerance}")
         lines.append("")
     lines.append("exposure of the whole sequence (ratio to the limit of each rule):")
     if not r.rule_ratios:

@@ -370,6 +370,13 @@ class StimulusPanel(Container):
         self.train_ms = FloatSpinBox(
             label="train length (ms)", min=1e-3, max=3e7, step=100.0, value=1000.0
         )
+        self.defocus_d = FloatSpinBox(
+            label="tolerance: defocus ± (D)", min=0.0, max=30.0, step=0.25, value=0.0
+        )
+        self.shift_um = FloatSpinBox(
+            label="tolerance: shift up to (µm)", min=0.0, max=2000.0, step=5.0, value=0.0
+        )
+        self.robust_design = CheckBox(text="robust design for the defocus", value=False)
         self.compute = PushButton(text="compute")
         self.status = wrapping(Label(value=""))
         self.extend(
@@ -390,6 +397,9 @@ class StimulusPanel(Container):
                 self.pulse_ms,
                 self.rate_hz,
                 self.train_ms,
+                self.defocus_d,
+                self.shift_um,
+                self.robust_design,
                 self.compute,
                 self.status,
             ]
@@ -474,6 +484,9 @@ class StimulusPanel(Container):
             pulse_ms=self.pulse_ms.value,
             rate_hz=self.rate_hz.value,
             train_ms=self.train_ms.value,
+            defocus_d=self.defocus_d.value,
+            shift_um=self.shift_um.value,
+            robust_design=self.robust_design.value,
         )
 
     # -- compute --------------------------------------------------------------------------
