@@ -34,6 +34,7 @@ from .sections import (
     read_section,
     read_steps,
     read_stimuli,
+    read_timing,
 )
 from .timeline import (
     check_counts,
@@ -276,7 +277,8 @@ def _assemble(
     protocol = None
     if "limits" in raw:
         protocol = read_section(report, raw, "limits", make_limits, "protocol")
-    shuffle, repeats = read_order(report, raw)
+    shuffle, interleave, repeats = read_order(report, raw)
+    timing = read_timing(report, raw)
     # With a broken [eye] or [implant] (already reported), stand-ins let the
     # stimuli's own values be checked; the specification is not built anyway.
     if implant is not None:
@@ -287,9 +289,17 @@ def _assemble(
     defined = raw.get("stimuli")
     failed = {k for k in defined if k not in stimuli} if isinstance(defined, dict) else set()
     default_power = laser.power_mw if laser is not None else Illumination().power_mw
-    steps = read_steps(report, raw, stimuli, failed, has_implant, default_power)
+    steps = read_steps(
+        report,
+        raw,
+        stimuli,
+        failed,
+        has_implant,
+        default_power,
+        allow_truncated_pulses=timing.allow_truncated_pulses,
+    )
     if steps and not report.errors:
-        check_counts(report, steps, repeats)
+        check_counts(report, steps, repeats, timing.jitter_ms)
     if report.errors:
         return None
     return SequenceSpec(
@@ -308,6 +318,8 @@ def _assemble(
         protocol=protocol,
         shuffle=shuffle,
         repeats=repeats,
+        interleave=interleave,
+        timing=timing,
         source_path=source,
         raw=raw,
     )
