@@ -189,6 +189,8 @@ def resolve_frame(fr, spec, plans) -> FramePlan:
             name,
             -1,
             (),
+            step_index=fr.step_index,
+            pulse_delay_ms=fr.pulse_delay_ms,
         )
     if fr.irradiance_mw_per_mm2 is not None:
         if name_plan.hologram_figures is None:
@@ -227,4 +229,6 @@ def resolve_frame(fr, spec, plans) -> FramePlan:
         target_irradiance_mw_per_mm2=fr.irradiance_mw_per_mm2,
         on_pixel_power_uw=on_uw,
         mask_on_pixel_power_uw=mask_uw,
+        step_index=fr.step_index,
+        pulse_delay_ms=fr.pulse_delay_ms,
     )

@@ -18,7 +18,16 @@ from .spool import (
     REFERENCE_POWER_MW,
 )
 
-__all__ = ["assess_frames", "orders_margin", "with_orders_note"]
+__all__ = ["exposed_frames", "assess_frames", "orders_margin", "with_orders_note"]
+
+
+def exposed_frames(frames):
+    """The frames whose pulses the exposure assessment counts: lit, with pulses.
+
+    The export's ``events.csv`` lists the pulses of these same frames, so the
+    file that drives the laser and the assessment see the same pulses.
+    """
+    return [fr for fr in frames if fr.lit and fr.pulses]
 
 
 def assess_frames(
@@ -41,9 +50,7 @@ def assess_frames(
     """
     pulses_of: dict[int, list] = {}
     by_index = {p.hologram_index: p for p in plans.values()}
-    for fr in frames:
-        if not fr.lit or not fr.pulses:
-            continue
+    for fr in exposed_frames(frames):
         power = fr.power_mw if power_of is None else power_of(fr)
         if power is None:
             continue
