@@ -38,6 +38,7 @@ from .sections import (
 )
 from .timeline import (
     check_counts,
+    expand_timeline,
 )
 
 __all__ = ["load_sequence", "parse_sequence", "sequence_from_dict"]
@@ -302,7 +303,7 @@ def _assemble(
         check_counts(report, steps, repeats, timing.jitter_ms)
     if report.errors:
         return None
-    return SequenceSpec(
+    spec = SequenceSpec(
         title=title,
         seed=seed,
         system=system,
@@ -323,3 +324,12 @@ def _assemble(
         source_path=source,
         raw=raw,
     )
+    if timing.slm_settle_ms > 0:
+        # the settling is checked on the expanded timeline: here once, for the lines
+        try:
+            expand_timeline(spec)
+        except SequenceError as exc:
+            for err in exc.errors:
+                report.add_exc(err, err.field)
+            return None
+    return spec
