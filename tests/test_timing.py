@@ -381,3 +381,18 @@ def test_the_timing_round_trips_through_the_resolved_configuration():
     again = sequence_from_dict(d)
     assert again.timing == spec.timing and again.interleave
     assert expand_timeline(again) == expand_timeline(spec)
+
+
+def test_the_worked_example_clears_its_settling_with_its_pulse_delay():
+    # Source: docs/sequence-format.md, worked example (demo values): 30 ms of settling,
+    # reversal pulses 30 ms after each reversal; without the delay each overlaps by 30 ms.
+    from .test_sequence import _doc_example
+
+    text = _doc_example()
+    spec = parse_sequence(text)
+    assert spec.timing.slm_settle_ms == 30
+    reversal = [f for f in expand_timeline(spec) if f.stimulus == "checks:reversed"]
+    assert reversal and all(f.pulses()[0].start_ms == f.start_ms + 30 for f in reversal)
+    line = next(ln for ln in text.splitlines() if ln.startswith("pulse_delay_ms"))
+    errs = _errors(text.replace(line + "\n", ""))
+    assert len(errs) == 1 and "by 30 ms" in errs[0].detail
