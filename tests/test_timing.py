@@ -396,3 +396,18 @@ def test_the_worked_example_clears_its_settling_with_its_pulse_delay():
     line = next(ln for ln in text.splitlines() if ln.startswith("pulse_delay_ms"))
     errs = _errors(text.replace(line + "\n", ""))
     assert len(errs) == 1 and "by 30 ms" in errs[0].detail
+
+
+def test_the_stimulus_panels_train_refuses_a_cut_pulse_at_its_own_label():
+    # By hand: a 1005 ms train at 20 Hz with 10 ms pulses puts its last pulse at 1000 ms,
+    # cut to 5 ms; 960 and 1010 ms end on whole pulses. Refused before any computing.
+    from stimplan.scenarios import SCENARIOS
+    from stimplan_napari._compute import StimulusRequest, compute_stimulus
+
+    request = StimulusRequest(
+        optics=next(iter(SCENARIOS)), kind="spot", params={"diameter_um": 200.0}, train_ms=1005.0
+    )
+    with pytest.raises(ConfigError) as info:
+        compute_stimulus(request)
+    assert info.value.field == "train length (ms)"
+    assert "960" in info.value.allowed and "1010" in info.value.allowed

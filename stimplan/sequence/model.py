@@ -296,11 +296,18 @@ class StepSpec:
 _STEP_FIELDS = dataclasses.fields(StepSpec)
 
 
-def truncation_error(prefix: str, step: StepSpec) -> ConfigError | None:
+_ALLOW_CUT = "or set [timing] allow_truncated_pulses = true"
+
+
+def truncation_error(
+    prefix: str, step: StepSpec, *, field: str | None = None, remedy: str = _ALLOW_CUT
+) -> ConfigError | None:
     """The error for a step whose frames cut their last pulse (``None`` if none is cut).
 
-    The error names the key to change, the cut and the lengths that hold
-    whole pulses; ``[timing] allow_truncated_pulses = true`` accepts the cut.
+    The error names the key to change (``field`` instead, when given: a
+    panel's own label), the cut and the lengths that hold whole pulses;
+    ``remedy`` is added to the detail (by default that ``[timing]
+    allow_truncated_pulses = true`` accepts the cut).
     """
     cut = step.truncated_pulse()
     if cut is None:
@@ -308,12 +315,12 @@ def truncation_error(prefix: str, step: StepSpec) -> ConfigError | None:
     start, left = cut
     detail = (
         f"the pulse at {start:g} ms of each frame would be cut from {step.pulse_ms:g} to "
-        f"{left:g} ms; or set [timing] allow_truncated_pulses = true"
-    )
+        f"{left:g} ms"
+    ) + (f"; {remedy}" if remedy else "")
     if step.alternating:
         most = step.period_ms - step.pulse_ms
         return ConfigError(
-            f"{prefix}.pulse_delay_ms",
+            field or f"{prefix}.pulse_delay_ms",
             step.pulse_delay_ms,
             f"<= {most:g} ms (1000 / rate_hz minus pulse_ms), so each frame of "
             f"alternate_ms = {step.alternate_ms:g} ends on a whole pulse",
@@ -323,7 +330,7 @@ def truncation_error(prefix: str, step: StepSpec) -> ConfigError | None:
     shorter = start - step.period_ms + step.pulse_ms
     fits = f"e.g. {shorter:g} or {longer:g}" if shorter > 0 else f"e.g. {longer:g}"
     return ConfigError(
-        f"{prefix}.duration_ms",
+        field or f"{prefix}.duration_ms",
         step.duration_ms,
         f"a length that ends on a whole pulse, {fits}",
         detail,
