@@ -225,3 +225,11 @@ def test_a_pulse_in_the_settling_stops_planning_before_any_hologram(monkeypatch)
     monkeypatch.setattr("stimplan.plan.run.run_batch", no_batch)
     with pytest.raises(SequenceError, match="overlaps the settling by 20 ms"):
         plan_sequence(settled, progress=False)
+
+
+def test_an_unchecked_settling_is_said_beside_the_estimate(plan):
+    # By hand: the spot's pulses, then the grating's: one hologram change, and
+    # slm_settle_ms is left at 0, so the estimate says the settling was not checked.
+    notes = [n for n in plan.exposure.notes if "slm_settle_ms is 0" in n]
+    assert len(notes) == 1 and "Hologram changes between pulses: 1." in notes[0]
+    assert "Note: " + notes[0] in plan.exposure.summary()

@@ -20,7 +20,7 @@ from .spool import (
     REFERENCE_POWER_MW,
     stimulus_key,
 )
-from .wiring import assess_frames, with_orders_note
+from .wiring import assess_frames, with_orders_note, with_settling_note
 
 __all__ = ["plan_sequence", "resolve_frame"]
 
@@ -148,6 +148,7 @@ def plan_sequence(
             ),
             ordered,
         )
+        exposure = with_settling_note(exposure, spec, frames)
     finally:
         if terminal is not None:
             terminal.close()
