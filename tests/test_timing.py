@@ -234,6 +234,8 @@ def test_the_same_hologram_again_is_no_change_and_the_first_is_loaded_before_tim
 
 
 def test_settling_and_timing_ranges_are_checked_at_their_keys():
+    # common practice: a value outside its range, or an unknown key, is refused at its
+    # own key and line, with what is allowed
     errs = _errors(
         _text(_step("a", 100, 10, 20), head="[timing]\nslm_settle_ms = -1\njitter_ms = 1e9")
     )
@@ -285,6 +287,7 @@ def test_interleaving_follows_the_documented_draws_from_the_seed():
 
 
 def test_interleave_and_shuffle_together_are_refused():
+    # common practice: two keys that would each decide the order are not both taken
     (err,) = _errors(
         _text(_step("a", 100, 10, 20), head="[order]\nshuffle = true\ninterleave = true")
     )
@@ -365,15 +368,23 @@ def test_jitter_leaves_the_order_unchanged():
 
 
 def test_a_jitter_pause_counts_as_settling_time():
-    # By hand: "a" then "b" back to back change hologram at 100 ms; with 30 ms of
-    # settling and no delay the pulse at 100 ms overlaps unless the jitter pause before
-    # "b" lasts 30 ms. With jitter in [0, 1e-3) ms it never does.
-    head = "[timing]\nslm_settle_ms = 30\njitter_ms = 0.001"
-    (err,) = _errors(_text(_step("a", 100, 10, 20), _step("b", 100, 10, 20), head=head))
+    # By hand: "a" then "b" with no pause of their own; the change to "b" may happen when
+    # "a" ends, and the jitter pause w before "b" covers w of 30 ms of settling, so the
+    # pulse at the start of "b" overlaps by 30 - w (w < 20 ms, so it always does).
+    steps = (_step("a", 100, 10, 20), _step("b", 100, 10, 20))
+    unchecked = parse_sequence(_text(*steps, head="seed = 2\n[timing]\njitter_ms = 20"))
+    frames = expand_timeline(unchecked)
+    b = next(k for k, f in enumerate(frames) if f.stimulus == "b")
+    assert frames[b - 1].jitter
+    w = frames[b - 1].duration_ms
+    (err,) = _errors(_text(*steps, head="seed = 2\n[timing]\njitter_ms = 20\nslm_settle_ms = 30"))
     assert err.field == "steps[1].pulse_delay_ms"
+    assert f"by {30 - w:g} ms" in err.detail
 
 
 def test_the_timing_round_trips_through_the_resolved_configuration():
+    # common practice: the resolved configuration (the manifest's) rebuilds an equal
+    # specification and the same timeline
     spec = _jittered(5, interleave="true")
     d = spec.to_dict()
     assert d["timing"] == {"slm_settle_ms": 0.0, "jitter_ms": 40.0, "allow_truncated_pulses": False}
