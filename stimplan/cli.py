@@ -228,7 +228,9 @@ def build_parser() -> argparse.ArgumentParser:
     _planning_options(c)
     c.set_defaults(func=_cmd_check)
 
-    e = sub.add_parser("export", help="export the hologram stack, timeline and manifest")
+    e = sub.add_parser(
+        "export", help="export the hologram stack, timeline, pulse events and manifest"
+    )
     e.add_argument("file", help="sequence file (.toml)")
     e.add_argument("-o", "--output", required=True, help="export folder to create")
     e.add_argument("--force", action="store_true", help="replace an existing folder")

@@ -91,6 +91,14 @@ RANGES = MappingProxyType(
         "pulse_ms": PhysicalRange(
             1e-6, 3e7, "pulses under 1 ns are outside the supported regime; " + _TABLES_END
         ),
+        "pulse_delay_ms": PhysicalRange(0.0, 3e7, _TABLES_END),
+        "jitter_ms": PhysicalRange(0.0, 3e7, _TABLES_END),
+        "slm_settle_ms": PhysicalRange(
+            0.0,
+            1e4,
+            "liquid-crystal phase SLMs settle in milliseconds to tenths of a second; "
+            "10 s is beyond any",
+        ),
         "rate_hz": PhysicalRange(
             1e-6,
             1e9,

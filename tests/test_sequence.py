@@ -763,11 +763,13 @@ def test_a_folder_given_as_the_sequence_file_is_named_as_such(tmp_path):
         load_sequence(tmp_path)
 
 
-def test_pulses_start_with_the_frame_and_the_last_one_is_cut():
-    # 1100 ms at 2 Hz, pulses of 200 ms: starts 0, 500, 1000; the last is cut to 100 ms.
+def test_pulses_start_with_the_frame_and_the_last_one_is_cut_when_allowed():
+    # 1100 ms at 2 Hz, pulses of 200 ms: starts 0, 500, 1000; the last is cut to 100 ms
+    # (refused without [timing] allow_truncated_pulses: tests/test_timing.py).
     text = _with_steps(
         'stimulus = "b"\nduration_ms = 250\npulse_ms = 10\nrate_hz = 10',
         'stimulus = "a"\nduration_ms = 1100\npulse_ms = 200\nrate_hz = 2',
+        head="[timing]\nallow_truncated_pulses = true",
     )
     frames = expand_timeline(parse_sequence(text))
     pulses = frames[1].pulses()

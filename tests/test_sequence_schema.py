@@ -11,7 +11,7 @@ from stimplan.exposure import ProtocolCap
 from stimplan.holography.ifta import IftaSettings
 from stimplan.implant import Implant
 from stimplan.optics.system import SLM, Illumination, Relay
-from stimplan.sequence import SequenceError, parse_sequence
+from stimplan.sequence import SequenceError, TimingSpec, parse_sequence
 from stimplan.sequence.schema import (
     IFTA_KEYS,
     HologramTable,
@@ -21,6 +21,7 @@ from stimplan.sequence.schema import (
     MaskTable,
     RelayTable,
     SlmTable,
+    TimingTable,
     keys_of,
 )
 
@@ -42,6 +43,7 @@ def _init_fields(cls: type) -> set[str]:
         (ImplantTable, Implant, set()),
         (MaskTable, AmplitudeMask, set()),
         (LimitsTable, ProtocolCap, set()),
+        (TimingTable, TimingSpec, set()),
         # the seed is the file's own, group weighting follows [implant] and implant_aware
         (HologramTable, IftaSettings, {"seed", "group_weighting"}),
     ],

@@ -19,7 +19,7 @@ def test_streaming_export_writes_the_same_files(tmp_path):
     assert spooled.holograms[0].spooled and not in_memory.holograms[0].spooled
     a = export_plan(in_memory, tmp_path / "memory")
     b = export_plan(spooled, tmp_path / "disk")
-    for name in ("holograms.tif", "timeline.csv"):
+    for name in ("holograms.tif", "timeline.csv", "events.csv"):
         assert sha256_file(a / name) == sha256_file(b / name)
     ma = json.loads((a / "manifest.json").read_text())
     mb = json.loads((b / "manifest.json").read_text())

@@ -23,7 +23,8 @@ from stimplan.implant import implant_preset
 from stimplan.plan import REFERENCE_POWER_MW, plan_sequence
 from stimplan.plan.memory import check_memory
 from stimplan.scenarios import SCENARIOS, load_scenario, with_slm_pixels
-from stimplan.sequence import StepSpec, load_sequence
+from stimplan.sequence import StepSpec, TimingSpec, load_sequence
+from stimplan.sequence.model import truncation_error
 from stimplan.stimuli import (
     E_ORIENTATIONS,
     LANDOLT_ORIENTATIONS,
@@ -302,6 +303,9 @@ def _one_step_spec(request: StimulusRequest):
         power_mw=None if target is not None else power,
         irradiance_mw_per_mm2=target,
     )
+    cut = truncation_error("", step, field="train length (ms)", remedy="")
+    if cut is not None:  # the panel's train must end on a whole pulse
+        raise cut
     tolerance = None
     if request.defocus_d or request.shift_um or request.robust_design:
         tolerance = ToleranceRanges(
@@ -321,7 +325,9 @@ def _one_step_spec(request: StimulusRequest):
         steps=(step,),
         ifta=ifta,
         shuffle=False,
+        interleave=False,
         repeats=1,
+        timing=TimingSpec(),  # one train from time 0: no jitter, one hologram
         raw={},
     ), power
 

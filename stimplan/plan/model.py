@@ -155,6 +155,8 @@ class FramePlan:
     """One frame of the timeline, resolved.
 
     ``stimulus`` is ``None`` and ``hologram_index`` is -1 for a dark pause.
+    ``step_index`` is the step of the file the frame comes from (-1 if
+    unknown); ``pulse_delay_ms`` the delay of its first pulse after its start.
     """
 
     index: int
@@ -169,6 +171,8 @@ class FramePlan:
     target_irradiance_mw_per_mm2: float | None = None
     on_pixel_power_uw: float | None = None
     mask_on_pixel_power_uw: float | None = None
+    step_index: int = -1
+    pulse_delay_ms: float = 0.0
 
     @property
     def lit(self) -> bool:

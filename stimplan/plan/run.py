@@ -20,7 +20,7 @@ from .spool import (
     REFERENCE_POWER_MW,
     stimulus_key,
 )
-from .wiring import assess_frames, with_orders_note
+from .wiring import assess_frames, with_orders_note, with_settling_note
 
 __all__ = ["plan_sequence", "resolve_frame"]
 
@@ -148,6 +148,7 @@ def plan_sequence(
             ),
             ordered,
         )
+        exposure = with_settling_note(exposure, spec, frames)
     finally:
         if terminal is not None:
             terminal.close()
@@ -189,6 +190,8 @@ def resolve_frame(fr, spec, plans) -> FramePlan:
             name,
             -1,
             (),
+            step_index=fr.step_index,
+            pulse_delay_ms=fr.pulse_delay_ms,
         )
     if fr.irradiance_mw_per_mm2 is not None:
         if name_plan.hologram_figures is None:
@@ -227,4 +230,6 @@ def resolve_frame(fr, spec, plans) -> FramePlan:
         target_irradiance_mw_per_mm2=fr.irradiance_mw_per_mm2,
         on_pixel_power_uw=on_uw,
         mask_on_pixel_power_uw=mask_uw,
+        step_index=fr.step_index,
+        pulse_delay_ms=fr.pulse_delay_ms,
     )

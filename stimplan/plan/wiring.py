@@ -18,7 +18,23 @@ from .spool import (
     REFERENCE_POWER_MW,
 )
 
-__all__ = ["assess_frames", "orders_margin", "with_orders_note"]
+__all__ = [
+    "exposed_frames",
+    "assess_frames",
+    "orders_margin",
+    "with_orders_note",
+    "hologram_changes",
+    "with_settling_note",
+]
+
+
+def exposed_frames(frames):
+    """The frames whose pulses the exposure assessment counts: lit, with pulses.
+
+    The export's ``events.csv`` lists the pulses of these same frames, so the
+    file that drives the laser and the assessment see the same pulses.
+    """
+    return [fr for fr in frames if fr.lit and fr.pulses]
 
 
 def assess_frames(
@@ -41,9 +57,7 @@ def assess_frames(
     """
     pulses_of: dict[int, list] = {}
     by_index = {p.hologram_index: p for p in plans.values()}
-    for fr in frames:
-        if not fr.lit or not fr.pulses:
-            continue
+    for fr in exposed_frames(frames):
         power = fr.power_mw if power_of is None else power_of(fr)
         if power is None:
             continue
@@ -120,5 +134,27 @@ def with_orders_note(assessment, holograms):
         f"laser power here) is included as the neighbouring orders within {margin_um:.0f} um "
         "of the predicted field (the map wrapped, times the pixel envelope); orders further "
         "out are not evaluated."
+    )
+    return replace(assessment, notes=(*assessment.notes, note))
+
+
+def hologram_changes(frames) -> int:
+    """How often the hologram under the pulses changes: between consecutive exposed frames."""
+    shown = [fr.hologram_index for fr in exposed_frames(frames)]
+    return sum(1 for a, b in zip(shown, shown[1:], strict=False) if a != b)
+
+
+def with_settling_note(assessment, spec, frames):
+    """Say when pulses were not checked against the SLM's settling (``slm_settle_ms = 0``)."""
+    if assessment is None or spec.timing.slm_settle_ms > 0:
+        return assessment
+    n = hologram_changes(frames)
+    if n == 0:
+        return assessment
+    note = (
+        f"Hologram changes between pulses: {n}. [timing] slm_settle_ms is 0, so the "
+        "pulses were not checked against the SLM's settling. A pulse during a change shows "
+        "a mixture of two holograms, which this estimate does not cover; set the settling "
+        "time measured on your SLM."
     )
     return replace(assessment, notes=(*assessment.notes, note))

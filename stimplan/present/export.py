@@ -5,6 +5,9 @@ An export folder holds
 * ``holograms.tif`` (multi-page TIFF, one page per distinct hologram, the SLM
   grey values) or ``holograms/hologram_000.png`` ... (one PNG each);
 * ``timeline.csv``: one row per frame;
+* ``events.csv``: one row per light pulse in time order (start, width, laser
+  power, hologram index, condition code), to drive a TTL or DAQ card: the
+  same pulses the exposure assessment counts (:mod:`stimplan.present.events`);
 * ``manifest.json``: format version, stimplan version, the fully resolved
   configuration, the seed, the SHA-256 of every file, the grey lookup
   (grey value and phase of every level, and the checksum of a measured
@@ -41,6 +44,7 @@ from ..cautions import CAUTIONS
 from ..errors import ConfigError, ExportError, ExposureLimitError, InputFileError, IntegrityError
 from ..holography.quantize import grey_map_for
 from ..plan.evaluate import mask_exposure
+from .events import EVENT_COLUMNS, events_csv_text, pulse_events
 
 __all__ = [
     "is_export_folder",
@@ -66,6 +70,7 @@ TIMELINE_COLUMNS = (
     "power_mw",
     "hologram_index",
     "stimulus",
+    "pulse_delay_ms",
 )
 
 
@@ -182,17 +187,23 @@ def _write_timeline(folder: Path, plan) -> str:
         w.writerow(
             [
                 fr.index,
-                f"{fr.start_ms:.6g}",
-                f"{fr.duration_ms:.6g}",
-                f"{fr.pulse_ms:.6g}",
-                f"{fr.rate_hz:.6g}",
-                f"{fr.power_mw:.6g}",
+                f"{fr.start_ms:.6f}",
+                f"{fr.duration_ms:.6f}",
+                f"{fr.pulse_ms:.6f}",
+                f"{fr.rate_hz:.9g}",
+                f"{fr.power_mw:.9g}",
                 fr.hologram_index,
                 "" if fr.stimulus is None else fr.stimulus,
+                f"{fr.pulse_delay_ms:.6f}",
             ]
         )
     (folder / "timeline.csv").write_text(buf.getvalue())
     return "timeline.csv"
+
+
+def _write_events(folder: Path, events) -> str:
+    (folder / "events.csv").write_text(events_csv_text(events))
+    return "events.csv"
 
 
 def is_export_folder(path: str | Path) -> bool:
@@ -283,7 +294,8 @@ def export_plan(
         Required when the exposure verdict is "above": why the user exports
         anyway. It is recorded in the manifest.
     fail_after : str, optional
-        Testing hook: raise after writing this part ("stack", "timeline").
+        Testing hook: raise after writing this part ("stack", "timeline",
+        "events").
 
     Returns
     -------
@@ -326,6 +338,10 @@ def export_plan(
         files.append(_write_timeline(tmp, plan))
         if fail_after == "timeline":
             raise RuntimeError("simulated failure after the timeline")
+        events = pulse_events(plan)
+        files.append(_write_events(tmp, events))
+        if fail_after == "events":
+            raise RuntimeError("simulated failure after the events")
         mask = mask_exposure(plan)
         manifest = {
             "format": EXPORT_FORMAT,
@@ -343,6 +359,8 @@ def export_plan(
             },
             "holograms": [_hologram_entry(sp) for sp in plan.holograms],
             "n_frames": len(plan.frames),
+            "n_events": len(events),
+            "event_columns": list(EVENT_COLUMNS),
             "n_holograms": len(plan.holograms),
             "grey_lookup": _lookup_entry(plan.spec.system.slm),
             "frames": [_frame_entry(fr) for fr in plan.frames],
@@ -377,12 +395,16 @@ class ExportBundle:
         ``(n_holograms, rows, cols)`` grey values.
     timeline : list of dict
         Rows of ``timeline.csv`` with numeric columns converted.
+    events : list of dict
+        Rows of ``events.csv`` with numeric columns converted (empty for an
+        export written before the file existed).
     """
 
     path: Path
     manifest: dict
     grey: np.ndarray
     timeline: list[dict[str, Any]]
+    events: tuple[dict[str, Any], ...] | list[dict[str, Any]] = ()
 
     @property
     def verdict(self) -> str:
@@ -445,9 +467,30 @@ def load_export(path: str | Path, *, verify: bool = True) -> ExportBundle:
                     "power_mw": float(row["power_mw"]),
                     "hologram_index": int(row["hologram_index"]),
                     "stimulus": row["stimulus"] or None,
+                    "pulse_delay_ms": float(row.get("pulse_delay_ms") or 0.0),
                 }
             )
-    return ExportBundle(p, manifest, grey, timeline)
+    return ExportBundle(p, manifest, grey, timeline, _read_events(p / "events.csv"))
+
+
+def _read_events(path: Path) -> list[dict[str, Any]]:
+    if not path.is_file():
+        return []
+    out = []
+    with open(path, newline="") as fh:
+        for row in csv.DictReader(fh):
+            out.append(
+                {
+                    "start_ms": float(row["start_ms"]),
+                    "width_ms": float(row["width_ms"]),
+                    "laser_power_mw": float(row["laser_power_mw"]),
+                    "hologram_index": int(row["hologram_index"]),
+                    "condition": int(row["condition"]),
+                    "frame_index": int(row["frame_index"]),
+                    "stimulus": row["stimulus"],
+                }
+            )
+    return out
 
 
 def _read_stack(p: Path, manifest: dict) -> np.ndarray:

@@ -35,9 +35,11 @@ from .sections import (
     read_section,
     read_steps,
     read_stimuli,
+    read_timing,
 )
 from .timeline import (
     check_counts,
+    expand_timeline,
 )
 
 __all__ = ["load_sequence", "parse_sequence", "sequence_from_dict"]
@@ -280,7 +282,8 @@ def _assemble(
     tolerance = None
     if "tolerance" in raw:
         tolerance = read_section(report, raw, "tolerance", ToleranceRanges, "tolerance")
-    shuffle, repeats = read_order(report, raw)
+    shuffle, interleave, repeats = read_order(report, raw)
+    timing = read_timing(report, raw)
     # With a broken [eye] or [implant] (already reported), stand-ins let the
     # stimuli's own values be checked; the specification is not built anyway.
     if implant is not None:
@@ -291,12 +294,20 @@ def _assemble(
     defined = raw.get("stimuli")
     failed = {k for k in defined if k not in stimuli} if isinstance(defined, dict) else set()
     default_power = laser.power_mw if laser is not None else Illumination().power_mw
-    steps = read_steps(report, raw, stimuli, failed, has_implant, default_power)
+    steps = read_steps(
+        report,
+        raw,
+        stimuli,
+        failed,
+        has_implant,
+        default_power,
+        allow_truncated_pulses=timing.allow_truncated_pulses,
+    )
     if steps and not report.errors:
-        check_counts(report, steps, repeats)
+        check_counts(report, steps, repeats, timing.jitter_ms)
     if report.errors:
         return None
-    return SequenceSpec(
+    spec = SequenceSpec(
         title=title,
         seed=seed,
         system=system,
@@ -313,6 +324,17 @@ def _assemble(
         tolerance=tolerance,
         shuffle=shuffle,
         repeats=repeats,
+        interleave=interleave,
+        timing=timing,
         source_path=source,
         raw=raw,
     )
+    if timing.slm_settle_ms > 0:
+        # the settling is checked on the expanded timeline: here once, for the lines
+        try:
+            expand_timeline(spec)
+        except SequenceError as exc:
+            for err in exc.errors:
+                report.add_exc(err, err.field)
+            return None
+    return spec

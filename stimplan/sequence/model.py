@@ -25,8 +25,9 @@ from .keys import (
     SEED_MAX,
 )
 from .schema import IFTA_KEYS
+from .timing import TimingSpec
 
-__all__ = ["pair_um", "check_step_values", "StepSpec", "SequenceSpec"]
+__all__ = ["pair_um", "check_step_values", "truncation_error", "StepSpec", "SequenceSpec"]
 
 
 def pair_um(path: str, value: Any) -> tuple[float, float]:
@@ -66,12 +67,14 @@ def check_step_values(prefix: str, d: Mapping[str, Any], errors: list[ConfigErro
         ("irradiance_mw_per_mm2", "irradiance_mw_per_mm2"),
         ("alternate_ms", "duration_ms"),
         ("blank_after_ms", "blank_ms"),
+        ("pulse_delay_ms", "pulse_delay_ms"),
     ):
         take(name, lambda f, x, q=quantity: validate.physical(f, x, q))
     take("repeat", lambda f, x: validate.integer(f, x, lo=1, hi=MAX_FRAMES))
     take("irradiance_basis", lambda f, x: validate.choice(f, x, IRRADIANCE_BASES))
     pulse, rate = out.get("pulse_ms"), out.get("rate_hz")
     dur, alt = out.get("duration_ms"), out.get("alternate_ms")
+    _check_delay(prefix, out.get("pulse_delay_ms"), pulse, rate, alt or dur, errors)
     if pulse is not None and rate is not None:
         period = 1000.0 / rate
         if pulse > period * (1 + 1e-12):
@@ -119,6 +122,37 @@ def check_step_values(prefix: str, d: Mapping[str, Any], errors: list[ConfigErro
     return out
 
 
+def _check_delay(
+    prefix: str,
+    delay: float | None,
+    pulse: float | None,
+    rate: float | None,
+    frame_ms: float | None,
+    errors: list[ConfigError],
+) -> None:
+    """``pulse_delay_ms`` under one period, and the first pulse whole inside every frame."""
+    if not delay:
+        return
+    if rate is not None and delay >= 1000.0 / rate:
+        errors.append(
+            ConfigError(
+                f"{prefix}.pulse_delay_ms",
+                delay,
+                f"< 1000 / rate_hz = {1000.0 / rate:g} ms",
+                "a delay of a whole period or more drops the first pulse",
+            )
+        )
+    elif pulse is not None and frame_ms is not None and delay + pulse > frame_ms * (1 + 1e-12):
+        errors.append(
+            ConfigError(
+                f"{prefix}.pulse_delay_ms",
+                delay,
+                f"<= {frame_ms - pulse:g} ms (the frame, {frame_ms:g} ms, minus pulse_ms)",
+                "the first pulse must end inside its frame",
+            )
+        )
+
+
 @dataclass(frozen=True)
 class StepSpec:
     """One step of a sequence.
@@ -150,6 +184,10 @@ class StepSpec:
     alternate_ms : float, optional
         With two stimuli: how long each is shown before the other, ms, in
         ``(0, duration_ms)``.
+    pulse_delay_ms : float
+        Delay of the first pulse after the start of each frame, ms, ``>= 0``
+        and under one period; the first pulse must end inside the frame.
+        Moves the pulses clear of an SLM's settling after a hologram change.
     """
 
     stimuli: tuple[str, ...]
@@ -162,6 +200,7 @@ class StepSpec:
     repeat: int = 1
     blank_after_ms: float = 0.0
     alternate_ms: float | None = None
+    pulse_delay_ms: float = 0.0
 
     def __post_init__(self) -> None:
         names = self.stimuli
@@ -207,6 +246,32 @@ class StepSpec:
     def alternating(self) -> bool:
         return len(self.stimuli) == 2
 
+    @property
+    def frame_ms(self) -> float:
+        """Length of each frame of one repetition: ``alternate_ms``, else ``duration_ms``."""
+        return self.alternate_ms if self.alternating else self.duration_ms
+
+    def truncated_pulse(self) -> tuple[float, float] | None:
+        """The last pulse of a frame if the frame's end cuts it, else ``None``.
+
+        Every frame of the step has the same length (:attr:`frame_ms`) and
+        its train: pulses at ``pulse_delay_ms + k * period_ms`` while they
+        start inside the frame.
+
+        Returns
+        -------
+        (float, float) or None
+            Start of the cut pulse from the frame start, ms, and the width
+            the frame leaves it, ms.
+        """
+        frame, period = self.frame_ms, self.period_ms
+        n = max(1, math.ceil((frame - self.pulse_delay_ms) / period - PIECE_TOL_MS))
+        start = self.pulse_delay_ms + (n - 1) * period
+        left = frame - start
+        if left >= self.pulse_ms - PIECE_TOL_MS * period:
+            return None
+        return start, left
+
     def to_dict(self) -> dict[str, Any]:
         """The step as in the file (``stimulus`` or ``alternate``, unset keys left out)."""
         out: dict[str, Any] = {}
@@ -221,11 +286,56 @@ class StepSpec:
         else:
             out["irradiance_mw_per_mm2"] = self.irradiance_mw_per_mm2
             out["irradiance_basis"] = self.irradiance_basis
-        out.update(repeat=self.repeat, blank_after_ms=self.blank_after_ms)
+        out.update(
+            repeat=self.repeat,
+            blank_after_ms=self.blank_after_ms,
+            pulse_delay_ms=self.pulse_delay_ms,
+        )
         return out
 
 
 _STEP_FIELDS = dataclasses.fields(StepSpec)
+
+
+_ALLOW_CUT = "or set [timing] allow_truncated_pulses = true"
+
+
+def truncation_error(
+    prefix: str, step: StepSpec, *, field: str | None = None, remedy: str = _ALLOW_CUT
+) -> ConfigError | None:
+    """The error for a step whose frames cut their last pulse (``None`` if none is cut).
+
+    The error names the key to change (``field`` instead, when given: a
+    panel's own label), the cut and the lengths that hold whole pulses;
+    ``remedy`` is added to the detail (by default that ``[timing]
+    allow_truncated_pulses = true`` accepts the cut).
+    """
+    cut = step.truncated_pulse()
+    if cut is None:
+        return None
+    start, left = cut
+    detail = (
+        f"the pulse at {start:g} ms of each frame would be cut from {step.pulse_ms:g} to "
+        f"{left:g} ms"
+    ) + (f"; {remedy}" if remedy else "")
+    if step.alternating:
+        most = step.period_ms - step.pulse_ms
+        return ConfigError(
+            field or f"{prefix}.pulse_delay_ms",
+            step.pulse_delay_ms,
+            f"<= {most:g} ms (1000 / rate_hz minus pulse_ms), so each frame of "
+            f"alternate_ms = {step.alternate_ms:g} ends on a whole pulse",
+            detail,
+        )
+    longer = start + step.pulse_ms
+    shorter = start - step.period_ms + step.pulse_ms
+    fits = f"e.g. {shorter:g} or {longer:g}" if shorter > 0 else f"e.g. {longer:g}"
+    return ConfigError(
+        field or f"{prefix}.duration_ms",
+        step.duration_ms,
+        f"a length that ends on a whole pulse, {fits}",
+        detail,
+    )
 
 
 def _asdict_set(obj: Any) -> dict[str, Any]:
@@ -273,9 +383,15 @@ class SequenceSpec:
         Ranges of the tolerance analysis (``[tolerance]``), and whether the
         implant-aware holograms are designed to survive their defocus.
     shuffle : bool
-        Shuffle the step order (from ``seed``).
+        Shuffle the step order (from ``seed``): each step keeps its
+        repetitions together.
+    interleave : bool
+        Shuffle the trials (every repetition of every step) within each
+        whole-sequence repeat (from ``seed``); not with ``shuffle``.
     repeats : int
         Whole-sequence repeats.
+    timing : TimingSpec
+        SLM settling, trial jitter and whether truncated pulses are allowed.
     source_path : str or None
         The file, when read from one.
     raw : dict
@@ -298,6 +414,8 @@ class SequenceSpec:
     tolerance: ToleranceRanges | None = None
     shuffle: bool = False
     repeats: int = 1
+    interleave: bool = False
+    timing: TimingSpec = field(default_factory=TimingSpec)
     source_path: str | None = field(default=None, compare=False)
     raw: dict[str, Any] = field(default_factory=dict, compare=False, repr=False)
 
@@ -310,6 +428,7 @@ class SequenceSpec:
             ("system", OpticalSystem),
             ("ifta", IftaSettings),
             ("mask", AmplitudeMask),
+            ("timing", TimingSpec),
         ):
             if not isinstance(getattr(self, name), cls):
                 raise ConfigError(name, getattr(self, name), f"a {cls.__name__}")
@@ -351,6 +470,19 @@ class SequenceSpec:
         )
         f(self, "shuffle", validate.boolean("order.shuffle", self.shuffle))
         f(self, "repeats", validate.integer("order.repeats", self.repeats, lo=1, hi=MAX_FRAMES))
+        f(self, "interleave", validate.boolean("order.interleave", self.interleave))
+        if not self.timing.allow_truncated_pulses:
+            for i, step in enumerate(self.steps):
+                err = truncation_error(f"steps[{i}]", step)
+                if err is not None:
+                    raise err
+        if self.shuffle and self.interleave:
+            raise ConfigError(
+                "order.interleave",
+                True,
+                "false with shuffle = true",
+                "interleave already shuffles every trial; give one of the two",
+            )
 
     def to_dict(self) -> dict[str, Any]:
         """The fully resolved configuration, JSON-able, in the layout of the file.
@@ -390,7 +522,12 @@ class SequenceSpec:
             out["limits"] = _asdict_set(self.protocol)
         if self.tolerance is not None:
             out["tolerance"] = self.tolerance.to_dict()
-        out["order"] = {"shuffle": self.shuffle, "repeats": self.repeats}
+        out["order"] = {
+            "shuffle": self.shuffle,
+            "interleave": self.interleave,
+            "repeats": self.repeats,
+        }
+        out["timing"] = self.timing.to_dict()
         out["stimuli"] = {k: st.to_dict() for k, st in self.stimuli.items() if ":" not in k}
         out["steps"] = [step.to_dict() for step in self.steps]
         return out

@@ -44,6 +44,7 @@ __all__ = [
     "MaskTable",
     "LimitsTable",
     "OrderTable",
+    "TimingTable",
     "StimulusTable",
     "StepTable",
     "IFTA_KEYS",
@@ -202,10 +203,19 @@ class ToleranceTable(_Table):
 
 
 class OrderTable(_Table):
-    """``[order]``: file order or shuffled, and whole-sequence repeats."""
+    """``[order]``: file order, shuffled steps or interleaved trials; whole-sequence repeats."""
 
     shuffle: bool | None = None
+    interleave: bool | None = None
     repeats: int | None = _WHOLE
+
+
+class TimingTable(_Table):
+    """``[timing]``: the hardware timing (:class:`stimplan.sequence.timing.TimingSpec`)."""
+
+    slm_settle_ms: float | None = None
+    jitter_ms: float | None = None
+    allow_truncated_pulses: bool | None = None
 
 
 class StimulusTable(BaseModel):
@@ -233,6 +243,7 @@ class StepTable(_Table):
     irradiance_basis: str | None = None
     repeat: int | None = _WHOLE
     blank_after_ms: float | None = None
+    pulse_delay_ms: float | None = None
 
 
 class SequenceFile(_Table):
@@ -253,6 +264,7 @@ class SequenceFile(_Table):
     limits: LimitsTable | None = None
     tolerance: ToleranceTable | None = None
     order: OrderTable | None = None
+    timing: TimingTable | None = None
     stimuli: dict[str, StimulusTable] = Field(
         description="a [stimuli.<name>] table for each stimulus",
     )

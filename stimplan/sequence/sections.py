@@ -1,6 +1,6 @@
 """Building the objects of each section of a sequence file.
 
-Optics, eye, implant, hologram, mask, limits, order, stimuli and steps.
+Optics, eye, implant, hologram, mask, limits, order, timing, stimuli and steps.
 """
 
 from __future__ import annotations
@@ -24,9 +24,10 @@ from ..stimuli.base import STIMULUS_KINDS, Stimulus
 from ..stimuli.registry import stimulus_from_dict
 from .keys import MAX_FRAMES, NAME_RE, PARTNER_SUFFIXES
 from .lines import key_parts
-from .model import StepSpec, check_step_values, pair_um
+from .model import StepSpec, check_step_values, pair_um, truncation_error
 from .report import ErrorReport, build_collecting, rebase_path
 from .schema import IFTA_KEYS
+from .timing import TimingSpec
 
 __all__ = [
     "make_mask",
@@ -37,6 +38,7 @@ __all__ = [
     "read_hologram",
     "read_section",
     "read_order",
+    "read_timing",
     "read_stimuli",
     "read_steps",
 ]
@@ -265,11 +267,12 @@ def read_section(
     )
 
 
-def read_order(report: ErrorReport, raw: Mapping[str, Any]) -> tuple[bool, int]:
-    shuffle, repeats = False, 1
+def read_order(report: ErrorReport, raw: Mapping[str, Any]) -> tuple[bool, bool, int]:
+    """``shuffle``, ``interleave`` and ``repeats`` of ``[order]``."""
+    shuffle, interleave, repeats = False, False, 1
     tbl = report.table(raw, "order", "order")
     if not tbl:
-        return shuffle, repeats
+        return shuffle, interleave, repeats
     tbl = report.usable(tbl, "order")
     try:
         if "shuffle" in tbl:
@@ -277,11 +280,31 @@ def read_order(report: ErrorReport, raw: Mapping[str, Any]) -> tuple[bool, int]:
     except ConfigError as exc:
         report.add_exc(exc, exc.field)
     try:
+        if "interleave" in tbl:
+            interleave = validate.boolean("order.interleave", tbl["interleave"])
+    except ConfigError as exc:
+        report.add_exc(exc, exc.field)
+    if shuffle and interleave:
+        report.add(
+            "order.interleave",
+            True,
+            "false with shuffle = true",
+            "interleave already shuffles every trial; give one of the two",
+        )
+    try:
         if "repeats" in tbl:
             repeats = validate.integer("order.repeats", tbl["repeats"], lo=1, hi=MAX_FRAMES)
     except ConfigError as exc:
         report.add_exc(exc, exc.field)
-    return shuffle, repeats
+    return shuffle, interleave, repeats
+
+
+def read_timing(report: ErrorReport, raw: Mapping[str, Any]) -> TimingSpec:
+    """``[timing]`` (the defaults when it is absent or has an error, which is reported)."""
+    if "timing" not in raw:
+        return TimingSpec()
+    timing = read_section(report, raw, "timing", TimingSpec, "timing")
+    return timing if timing is not None else TimingSpec()
 
 
 def _stimulus_path(field_: str, name: str) -> str:
@@ -403,6 +426,7 @@ def read_steps(
     failed: set[str],
     has_implant: bool,
     default_power_mw: float,
+    allow_truncated_pulses: bool = False,
 ) -> list[StepSpec]:
     items = raw.get("steps")
     if "steps" in report.refused or not isinstance(items, list):
@@ -449,7 +473,11 @@ def read_steps(
         if not has_power and not has_irr:
             vals["power_mw"] = default_power_mw
         try:
-            out.append(StepSpec(stimuli=names, **vals))
+            step = StepSpec(stimuli=names, **vals)
+            cut = None if allow_truncated_pulses else truncation_error(prefix, step)
+            if cut is not None:
+                report.add_exc(cut, cut.field)
+            out.append(step)
         except StimplanError as exc:
             report.add_exc(exc, rebase_path(exc.field, "step", prefix))
         except Exception as exc:

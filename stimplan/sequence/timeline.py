@@ -17,12 +17,16 @@ from .keys import (
 )
 from .model import SequenceSpec, StepSpec
 from .report import ErrorReport, SequenceError
+from .settle import settling_errors
+from .timing import JITTER_STREAM
 
 __all__ = [
     "FrameSpec",
     "timeline_counts",
     "check_counts",
     "step_order",
+    "trial_order",
+    "trial_jitter_ms",
     "expand_timeline",
     "total_duration_ms",
 ]
@@ -56,6 +60,10 @@ class FrameSpec:
         Which repetition of the step, from 0.
     sequence_repeat : int
         Which whole-sequence repeat, from 0.
+    pulse_delay_ms : float
+        Delay of the first pulse after the frame start, ms.
+    jitter : bool
+        True for the dark pause of a trial's start jitter.
     """
 
     index: int
@@ -70,6 +78,8 @@ class FrameSpec:
     step_index: int
     repetition: int
     sequence_repeat: int = 0
+    pulse_delay_ms: float = 0.0
+    jitter: bool = False
 
     @property
     def end_ms(self) -> float:
@@ -87,18 +97,23 @@ class FrameSpec:
 
     @property
     def n_pulses(self) -> int:
-        """Number of pulses in the frame, ``ceil(duration_ms * rate_hz / 1000)``."""
+        """Number of pulses, ``ceil((duration_ms - pulse_delay_ms) * rate_hz / 1000)``."""
         if self.is_blank or self.rate_hz <= 0 or self.pulse_ms <= 0:
             return 0
-        n = _pieces(self.duration_ms, 1000.0 / self.rate_hz)
+        if self.pulse_delay_ms >= self.duration_ms:
+            return 0
+        n = _pieces(self.duration_ms - self.pulse_delay_ms, 1000.0 / self.rate_hz)
         return int(n) if math.isfinite(n) else MAX_PULSES + 1
 
     def pulses(self) -> list[Pulse]:
         """The pulse train of the frame, absolute start times in ms.
 
-        The train starts at the frame start, one pulse of ``pulse_ms`` every
-        ``1000 / rate_hz`` ms; a pulse that would run past the end of the
-        frame is cut there. A dark frame has none.
+        The train starts ``pulse_delay_ms`` after the frame start, one pulse
+        of ``pulse_ms`` every ``1000 / rate_hz`` ms, while pulses start
+        inside the frame. A pulse that would run past the end of the frame is
+        cut there: a sequence allows that only with ``[timing]
+        allow_truncated_pulses = true`` (:meth:`StepSpec.truncated_pulse`).
+        A dark frame has none.
 
         Returns
         -------
@@ -112,7 +127,7 @@ class FrameSpec:
         period = 1000.0 / self.rate_hz
         out = []
         for k in range(n):
-            offset = k * period
+            offset = self.pulse_delay_ms + k * period
             width = min(self.pulse_ms, self.duration_ms - offset)
             out.append(Pulse(self.start_ms + offset, width))
         return out
@@ -143,18 +158,19 @@ def _step_frames(step: StepSpec) -> list[tuple[str, float, float]]:
     return out
 
 
-def _step_counts(step: StepSpec) -> tuple[float, float]:
-    """Frames and pulses of one repetition of a step (blank included), without expanding."""
+def _step_counts(step: StepSpec, jitter_ms: float = 0.0) -> tuple[float, float]:
+    """Frames and pulses of one trial of a step (jitter and blank included), without expanding."""
     period = step.period_ms
-    blank = 1.0 if step.blank_after_ms > 0 else 0.0
+    extra = (1.0 if step.blank_after_ms > 0 else 0.0) + (1.0 if jitter_ms > 0 else 0.0)
+    delay = step.pulse_delay_ms
     if not step.alternating:
-        return 1.0 + blank, _pieces(step.duration_ms, period)
+        return 1.0 + extra, _pieces(step.duration_ms - delay, period)
     n = _pieces(step.duration_ms, step.alternate_ms)
     if not math.isfinite(n):
         return math.inf, math.inf
     last = step.duration_ms - (n - 1) * step.alternate_ms
-    pulses = (n - 1) * _pieces(step.alternate_ms, period) + _pieces(last, period)
-    return n + blank, pulses
+    pulses = (n - 1) * _pieces(step.alternate_ms - delay, period) + _pieces(last - delay, period)
+    return n + extra, pulses
 
 
 def timeline_counts(spec: SequenceSpec) -> tuple[float, float]:
@@ -165,20 +181,22 @@ def timeline_counts(spec: SequenceSpec) -> tuple[float, float]:
     (float, float)
         Whole numbers, or ``inf`` for absurdly many.
     """
-    return _counts(spec.steps, spec.repeats)
+    return _counts(spec.steps, spec.repeats, spec.timing.jitter_ms)
 
 
-def _counts(steps: Sequence[StepSpec], repeats: int) -> tuple[float, float]:
+def _counts(steps: Sequence[StepSpec], repeats: int, jitter_ms: float = 0.0) -> tuple[float, float]:
     frames = pulses = 0.0
     for step in steps:
-        f, p = _step_counts(step)
+        f, p = _step_counts(step, jitter_ms)
         frames += step.repeat * f
         pulses += step.repeat * p
     return frames * repeats, pulses * repeats
 
 
-def _count_errors(steps: Sequence[StepSpec], repeats: int) -> list[ConfigError]:
-    frames, pulses = _counts(steps, repeats)
+def _count_errors(
+    steps: Sequence[StepSpec], repeats: int, jitter_ms: float = 0.0
+) -> list[ConfigError]:
+    frames, pulses = _counts(steps, repeats, jitter_ms)
     out = []
     if frames > MAX_FRAMES:
         out.append(
@@ -201,8 +219,10 @@ def _count_errors(steps: Sequence[StepSpec], repeats: int) -> list[ConfigError]:
     return out
 
 
-def check_counts(report: ErrorReport, steps: Sequence[StepSpec], repeats: int) -> None:
-    for e in _count_errors(steps, repeats):
+def check_counts(
+    report: ErrorReport, steps: Sequence[StepSpec], repeats: int, jitter_ms: float = 0.0
+) -> None:
+    for e in _count_errors(steps, repeats, jitter_ms):
         report.add_exc(e, e.field)
 
 
@@ -210,7 +230,8 @@ def step_order(spec: SequenceSpec) -> tuple[tuple[int, ...], ...]:
     """The order of the steps in each whole-sequence repeat.
 
     File order, or, with ``shuffle``, a permutation for each repeat drawn in
-    turn from ``numpy.random.default_rng(seed)``.
+    turn from ``numpy.random.default_rng(seed)``. With ``interleave`` the
+    steps in the order of their first trial (:func:`trial_order`).
 
     Returns
     -------
@@ -218,10 +239,62 @@ def step_order(spec: SequenceSpec) -> tuple[tuple[int, ...], ...]:
         One tuple of step indices per repeat.
     """
     n = len(spec.steps)
+    if spec.interleave:
+        return tuple(tuple(dict.fromkeys(trials)) for trials in trial_order(spec))
     if not spec.shuffle:
         return tuple(tuple(range(n)) for _ in range(spec.repeats))
     rng = np.random.default_rng(spec.seed)
     return tuple(tuple(int(i) for i in rng.permutation(n)) for _ in range(spec.repeats))
+
+
+def trial_order(spec: SequenceSpec) -> tuple[tuple[int, ...], ...]:
+    """The trials of each whole-sequence repeat, as the step index of each, in time order.
+
+    A trial is one repetition of a step. Without ``interleave`` each step's
+    ``repeat`` trials run together, in the order of :func:`step_order`. With
+    ``interleave``, the trials of a repeat in file order (``steps[0]``
+    ``repeat`` times, then ``steps[1]`` ...) are permuted: for each repeat in
+    turn, ``trials[rng.permutation(len(trials))]`` with
+    ``rng = numpy.random.default_rng(seed)``.
+
+    Returns
+    -------
+    tuple of tuple of int
+        One tuple per repeat.
+    """
+    if not spec.interleave:
+        return tuple(
+            tuple(si for si in order for _ in range(spec.steps[si].repeat))
+            for order in step_order(spec)
+        )
+    trials = np.array(
+        [si for si, step in enumerate(spec.steps) for _ in range(step.repeat)], dtype=np.int64
+    )
+    rng = np.random.default_rng(spec.seed)
+    return tuple(
+        tuple(int(i) for i in trials[rng.permutation(len(trials))]) for _ in range(spec.repeats)
+    )
+
+
+def trial_jitter_ms(spec: SequenceSpec, n_trials: int) -> np.ndarray:
+    """The start jitter of each trial in time order, ms, uniform in ``[0, jitter_ms)``.
+
+    Drawn as ``rng.uniform(0, jitter_ms, n_trials)`` with ``rng =
+    numpy.random.default_rng(numpy.random.SeedSequence(seed, spawn_key=(1,)))``
+    (:data:`~stimplan.sequence.timing.JITTER_STREAM`), a stream apart from
+    the order's, so the order does not change with the jitter. All zeros
+    when ``jitter_ms`` is 0.
+
+    References
+    ----------
+    .. [1] NumPy documentation, ``Generator.uniform`` (half-open interval
+       ``[low, high)``) and ``SeedSequence``.
+    """
+    jitter = spec.timing.jitter_ms
+    if jitter <= 0:
+        return np.zeros(n_trials)
+    seq = np.random.SeedSequence(spec.seed, spawn_key=(JITTER_STREAM,))
+    return np.random.default_rng(seq).uniform(0.0, jitter, n_trials)
 
 
 def expand_timeline(spec: SequenceSpec) -> tuple[FrameSpec, ...]:
@@ -235,36 +308,53 @@ def expand_timeline(spec: SequenceSpec) -> tuple[FrameSpec, ...]:
     -------
     tuple of FrameSpec
         Contiguous frames from 0 ms: for each whole-sequence repeat, the
-        steps in :func:`step_order`; for each step, its repetitions, each
-        made of one frame (or the alternating frames) and, if
-        ``blank_after_ms > 0``, a dark frame.
+        trials in :func:`trial_order`; each trial made of, with
+        ``[timing] jitter_ms > 0``, a dark frame of its jitter
+        (:func:`trial_jitter_ms`), one frame (or the alternating frames)
+        and, if ``blank_after_ms > 0``, a dark frame.
 
     Raises
     ------
     SequenceError
         If the timeline would have more than :data:`MAX_FRAMES` frames or
-        :data:`MAX_PULSES` pulses.
+        :data:`MAX_PULSES` pulses, or a pulse would start while the SLM
+        settles after a hologram change (:mod:`stimplan.sequence.settle`).
     """
-    errs = _count_errors(spec.steps, spec.repeats)
+    errs = _count_errors(spec.steps, spec.repeats, spec.timing.jitter_ms)
     if errs:
         raise SequenceError(errs, spec.source_path)
+    orders = trial_order(spec)
+    jitters = trial_jitter_ms(spec, sum(len(o) for o in orders))
+    parts_of = [_step_frames(step) for step in spec.steps]
     frames: list[FrameSpec] = []
     t = 0.0
-    for cycle, order in enumerate(step_order(spec)):
+    k = 0
+    for cycle, order in enumerate(orders):
+        done = [0] * len(spec.steps)
         for si in order:
             step = spec.steps[si]
-            parts = _step_frames(step)
-            for rep in range(step.repeat):
-                t0 = t
-                for name, offset, dur in parts:
-                    frames.append(_frame(len(frames), t0 + offset, dur, step, name, si, rep, cycle))
-                t = t0 + step.duration_ms
-                if step.blank_after_ms > 0:
-                    frames.append(
-                        _frame(len(frames), t, step.blank_after_ms, step, None, si, rep, cycle)
-                    )
-                    t += step.blank_after_ms
-    return tuple(frames)
+            rep = done[si]
+            done[si] += 1
+            if spec.timing.jitter_ms > 0:
+                wait = float(jitters[k])
+                frames.append(_frame(len(frames), t, wait, step, None, si, rep, cycle, True))
+                t += wait
+            k += 1
+            t0 = t
+            for name, offset, dur in parts_of[si]:
+                frames.append(_frame(len(frames), t0 + offset, dur, step, name, si, rep, cycle))
+            t = t0 + step.duration_ms
+            if step.blank_after_ms > 0:
+                frames.append(
+                    _frame(len(frames), t, step.blank_after_ms, step, None, si, rep, cycle)
+                )
+                t += step.blank_after_ms
+    out = tuple(frames)
+    dark = {name for name, st in spec.stimuli.items() if st.kind == "blank"}
+    errs = settling_errors(out, spec.timing.slm_settle_ms, dark_names=dark)
+    if errs:
+        raise SequenceError(errs, spec.source_path)
+    return out
 
 
 def _frame(
@@ -276,6 +366,7 @@ def _frame(
     si: int,
     rep: int,
     cycle: int,
+    jitter: bool = False,
 ) -> FrameSpec:
     lit = name is not None
     return FrameSpec(
@@ -291,6 +382,8 @@ def _frame(
         step_index=si,
         repetition=rep,
         sequence_repeat=cycle,
+        pulse_delay_ms=step.pulse_delay_ms if lit else 0.0,
+        jitter=jitter,
     )
 
 
