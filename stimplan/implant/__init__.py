@@ -57,7 +57,7 @@ from .geometry import (
     silicon_responsivity_limit_a_per_w,
 )
 from .layout import Implant, PixelResponse
-from .photodiode import pixel_photocurrent_ua
+from .photodiode import pixel_photocurrent_ua, pixel_responsivity
 from .presets import IMPLANT_PRESETS, implant_names, implant_preset
 from .raster import ImplantRaster, PixelReadout
 from .strength_duration import StrengthDuration, lapicque_threshold, weiss_threshold
@@ -77,6 +77,7 @@ __all__ = [
     "disc_quadrant_area",
     "PixelResponse",
     "pixel_photocurrent_ua",
+    "pixel_responsivity",
     "StrengthDuration",
     "weiss_threshold",
     "lapicque_threshold",
