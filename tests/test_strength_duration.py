@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import html
 import math
 from types import SimpleNamespace
 
@@ -256,3 +257,10 @@ def test_the_plan_reads_the_curve_at_each_stimulus_pulse_width():
     assert spot["on_below"] == int(np.sum(on & (irr < 0.6)))
     assert spot["off_above"] == int(np.sum(~on & (irr > 0.6)))
     assert "the curve at 5 ms pulses" in view_text(spot)
+    # the report says the same, with the cautions (every exposure figure carries them)
+    from stimplan.cautions import CAUTIONS
+    from stimplan.present.report import render_report
+
+    html_text = render_report(plan)
+    assert "the curve at 5 ms pulses" in html_text and "threshold_pulse_range_ms" in html_text
+    assert html.escape(CAUTIONS) in html_text
