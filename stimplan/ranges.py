@@ -80,6 +80,18 @@ RANGES = MappingProxyType(
             "published photovoltaic thresholds lie between hundredths and tens of mW/mm²; "
             "1 W/mm² on the retina is beyond any exposure limit",
         ),
+        "responsivity_a_per_w": PhysicalRange(
+            0.0,
+            0.9,
+            "one electron per photon gives at most e·λ/(h·c) = λ[µm]/1.24 A/W, under 0.9 A/W "
+            "for every wavelength silicon absorbs (below 1.1 µm)",
+            lo_open=True,
+        ),
+        "chronaxie_ms": PhysicalRange(
+            1e-3,
+            1e3,
+            "neural chronaxies lie between tens of µs and tens of ms; 1 µs to 1 s holds them all",
+        ),
         "retinal_length_um": PhysicalRange(0.0, 1e5, _NO_RETINA, lo_open=True),
         "retinal_position_um": PhysicalRange(-1e5, 1e5, _NO_RETINA),
         "angle_deg": PhysicalRange(

@@ -218,12 +218,13 @@ VIEW_EDGES = {"on_below": "red", "off_above": "magenta", "on": "white", "off": "
 
 
 def result_view(result):
-    """The implant's view of a computed stimulus at its laser power, or None (no implant,
-    or no threshold range: :func:`stimplan.implant.stimulation_threshold` says why)."""
+    """The implant's view of a computed stimulus at its laser power and pulse width, or
+    None (no implant, no threshold, or a strength–duration curve that does not hold at
+    the pulse width: :func:`stimplan.implant.stimulation_threshold` says why)."""
     if result.implant is None or result.readout is None or result.on is None:
         return None
     try:
-        threshold = stimulation_threshold(result.implant)
+        threshold = stimulation_threshold(result.implant, pulse_ms=result.request.pulse_ms)
     except ConfigError:
         return None
     k = result.power_mw / REFERENCE_POWER_MW
@@ -281,6 +282,7 @@ def implant_view_shapes(implant, view, *, visible: bool = False) -> tuple:
         "metadata": {
             "threshold_mw_per_mm2": t.as_pair(),
             "source": t.source,
+            "pulse_ms": t.pulse_ms,
             "cautions": CAUTION_SHORT,
         },
     }

@@ -23,11 +23,14 @@ Membership
     ``diameter_um`` corner to corner; ``rings=k`` selects the centred
     hexagonal patch of ``3k(k+1)+1`` pixels (corner to corner
     ``(2k+1) × pitch`` with centre inclusion).
-Threshold and view
-    An implant may carry a stimulation threshold range with its source
-    (:mod:`~stimplan.implant.threshold`); the implant's view of a stimulus
-    sets each pixel's photodiode irradiance against it
-    (:mod:`~stimplan.implant.view`).
+Photodiodes, threshold and view
+    A pixel's current is responsivity × power / diodes in series
+    (:mod:`~stimplan.implant.photodiode`; the silicon limit when no
+    responsivity is known). An implant may carry a stimulation threshold
+    range with its source (:mod:`~stimplan.implant.threshold`) or a
+    strength–duration curve (:mod:`~stimplan.implant.strength_duration`);
+    the implant's view of a stimulus sets each pixel's photodiode irradiance
+    against it (:mod:`~stimplan.implant.view`).
 Rasterising
     The coverage of every grid sample by every active area is computed
     exactly (analytic intersection of each polygon or disc with each sample
@@ -53,9 +56,11 @@ from .geometry import (
     polygon_quadrant_area,
     silicon_responsivity_limit_a_per_w,
 )
-from .layout import Implant
+from .layout import Implant, PixelResponse
+from .photodiode import pixel_photocurrent_ua, pixel_responsivity
 from .presets import IMPLANT_PRESETS, implant_names, implant_preset
 from .raster import ImplantRaster, PixelReadout
+from .strength_duration import StrengthDuration, lapicque_threshold, weiss_threshold
 from .threshold import StimulationThreshold, stimulation_threshold
 from .view import ImplantView, implant_view
 
@@ -70,6 +75,12 @@ __all__ = [
     "centred_hexagonal_number",
     "polygon_quadrant_area",
     "disc_quadrant_area",
+    "PixelResponse",
+    "pixel_photocurrent_ua",
+    "pixel_responsivity",
+    "StrengthDuration",
+    "weiss_threshold",
+    "lapicque_threshold",
     "StimulationThreshold",
     "stimulation_threshold",
     "ImplantView",

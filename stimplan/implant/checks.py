@@ -10,6 +10,8 @@ from .. import validate
 from ..errors import ConfigError
 from .geometry import centred_hexagonal_number
 from .lattice import outline_half_extent_um
+from .photodiode import check_diodes_in_series
+from .strength_duration import StrengthDuration
 from .threshold import check_threshold
 
 __all__ = [
@@ -23,6 +25,7 @@ __all__ = [
     "size_text",
     "check_size",
     "check_active",
+    "check_response",
     "cell_normals",
     "active_support_um",
 ]
@@ -155,6 +158,45 @@ def check_active(implant: Any) -> None:
         )
 
 
+def check_response(implant: Any) -> None:
+    """Check the responsivity, the diodes in series and the strength–duration fields
+    (storing the validated values)."""
+    f = object.__setattr__
+    r = implant.responsivity_a_per_w
+    if r is not None:
+        r = validate.physical("implant.responsivity_a_per_w", r, "responsivity_a_per_w")
+        f(implant, "responsivity_a_per_w", r)
+    f(implant, "diodes_in_series", check_diodes_in_series(implant.diodes_in_series))
+    rheo, chron = implant.threshold_rheobase_mw_per_mm2, implant.threshold_chronaxie_ms
+    if rheo is None:
+        for key in ("threshold_chronaxie_ms", "threshold_law", "threshold_pulse_range_ms"):
+            if getattr(implant, key) is not None:
+                raise ConfigError(
+                    f"implant.{key}",
+                    getattr(implant, key),
+                    "only with threshold_rheobase_mw_per_mm2 (a strength–duration curve)",
+                )
+        return
+    if chron is None:
+        raise ConfigError(
+            "implant.threshold_chronaxie_ms",
+            None,
+            "a chronaxie (ms) with threshold_rheobase_mw_per_mm2",
+            "a strength–duration curve needs both",
+        )
+    curve = StrengthDuration(
+        rheobase_mw_per_mm2=rheo,
+        chronaxie_ms=chron,
+        law=implant.threshold_law or "weiss",
+        pulse_range_ms=implant.threshold_pulse_range_ms,
+    )
+    f(implant, "threshold_rheobase_mw_per_mm2", curve.rheobase_mw_per_mm2)
+    f(implant, "threshold_chronaxie_ms", curve.chronaxie_ms)
+    if implant.threshold_law is not None:
+        f(implant, "threshold_law", curve.law)
+    f(implant, "threshold_pulse_range_ms", curve.pulse_range_ms)
+
+
 # -- geometry of one pixel (array frame, before rotation) ------------------
 
 
@@ -204,7 +246,12 @@ def check_fields(implant: Any) -> None:
         "rotation_deg",
         validate.physical("implant.rotation_deg", implant.rotation_deg, "angle_deg"),
     )
-    pair, source = check_threshold(implant.threshold_mw_per_mm2, implant.threshold_source)
+    check_response(implant)
+    pair, source = check_threshold(
+        implant.threshold_mw_per_mm2,
+        implant.threshold_source,
+        has_curve=implant.threshold_rheobase_mw_per_mm2 is not None,
+    )
     f(implant, "threshold_mw_per_mm2", pair)
     f(implant, "threshold_source", source)
     if not isinstance(implant.name, str):

@@ -26,12 +26,60 @@ from .geometry import (
 )
 from .lattice import lattice_um
 from .raster import ImplantRaster, PixelReadout, pixel_readout, rasterize
+from .strength_duration import StrengthDuration
 
-__all__ = ["Implant"]
+__all__ = ["Implant", "PixelResponse"]
 
 
 @dataclass(frozen=True, kw_only=True)
-class Implant:
+class PixelResponse:
+    """The fields of an :class:`Implant` that say how its pixels answer light.
+
+    Parameters
+    ----------
+    responsivity_a_per_w : float, optional
+        Responsivity of one photodiode at the illumination wavelength, A/W, in
+        (0, 0.9] and at most the silicon limit ``e λ / (h c)`` there. None: the
+        silicon limit, an upper bound (:mod:`stimplan.implant.photodiode`).
+    diodes_in_series : int
+        Photodiodes in series per pixel, each on ``1/n`` of the active area, in
+        [1, 16]; the pixel's current is ``responsivity × power / n``.
+    threshold_rheobase_mw_per_mm2 : float, optional
+        Rheobase of a strength–duration threshold, mW/mm² of photodiode
+        irradiance (:mod:`stimplan.implant.strength_duration`); with
+        ``threshold_chronaxie_ms``, instead of a threshold range.
+    threshold_chronaxie_ms : float, optional
+        Its chronaxie, ms.
+    threshold_law : {"weiss", "lapicque"}, optional
+        Its law (``"weiss"`` when a curve is given without one).
+    threshold_pulse_range_ms : pair of float, optional
+        The pulse widths the curve holds for; other pulses are refused.
+    """
+
+    responsivity_a_per_w: float | None = None
+    diodes_in_series: int = 1
+    threshold_rheobase_mw_per_mm2: float | None = None
+    threshold_chronaxie_ms: float | None = None
+    threshold_law: str | None = None
+    threshold_pulse_range_ms: tuple[float, float] | None = None
+
+    @cached_property
+    def strength_duration(self) -> StrengthDuration | None:
+        """The strength–duration threshold, or None when the implant has none."""
+        if self.threshold_rheobase_mw_per_mm2 is None:
+            return None
+        return StrengthDuration(
+            rheobase_mw_per_mm2=self.threshold_rheobase_mw_per_mm2,
+            chronaxie_ms=self.threshold_chronaxie_ms,
+            law=self.threshold_law or "weiss",
+            pulse_range_ms=self.threshold_pulse_range_ms,
+            source=getattr(self, "threshold_source", None)
+            or "given by the user ([implant] threshold_rheobase_mw_per_mm2)",
+        )
+
+
+@dataclass(frozen=True, kw_only=True)
+class Implant(PixelResponse):
     """A photovoltaic pixel array placed on the retina.
 
     Parameters
@@ -77,7 +125,9 @@ class Implant:
         Stimulation threshold range ``(low, high)`` of photodiode irradiance, mW/mm²
         (:mod:`stimplan.implant.threshold`); None when no source gives one.
     threshold_source : str, optional
-        Where that range comes from.
+        Where that range (or the strength–duration curve) comes from.
+    responsivity_a_per_w, diodes_in_series, threshold_rheobase_mw_per_mm2, ...
+        How the pixels answer light: the fields of :class:`PixelResponse`.
 
     Notes
     -----
@@ -266,7 +316,7 @@ class Implant:
         responsivity_a_per_w: float | None = None,
         wavelength_nm: float = 880.0,
     ) -> PixelReadout:
-        """Integrate an irradiance map over each pixel's photodiode (:func:`pixel_readout`)."""
+        """Light on each pixel's photodiode and its current (:func:`pixel_readout`)."""
         return pixel_readout(
             self,
             irradiance_mw_per_mm2,

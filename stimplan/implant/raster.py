@@ -20,8 +20,8 @@ from .geometry import (
     disc_quadrant_area,
     polygon_quadrant_grid,
     rotate_um,
-    silicon_responsivity_limit_a_per_w,
 )
+from .photodiode import pixel_photocurrent_ua, pixel_responsivity
 
 __all__ = [
     "rasterize",
@@ -116,10 +116,15 @@ class PixelReadout:
         Extremes of the irradiance over the samples that the active area
         covers by more than half (by the most-covered sample when none is).
     photocurrent_ua : ndarray
-        ``responsivity × power``, µA (photodiode current before any
-        electrode or tissue model).
+        ``responsivity × power / diodes_in_series``, µA: the pixel's photodiode
+        current before any electrode or tissue model
+        (:mod:`stimplan.implant.photodiode`).
     responsivity_a_per_w : float
         The responsivity used.
+    diodes_in_series : int
+        Photodiodes in series per pixel.
+    responsivity_is_limit : bool
+        Whether the responsivity is the silicon limit (the current an upper bound).
     """
 
     pixel: np.ndarray
@@ -132,6 +137,8 @@ class PixelReadout:
     max_irradiance_mw_per_mm2: np.ndarray
     photocurrent_ua: np.ndarray
     responsivity_a_per_w: float
+    diodes_in_series: int = 1
+    responsivity_is_limit: bool = False
 
     @property
     def n_pixels(self) -> int:
@@ -262,11 +269,18 @@ def pixel_readout(
     grid : RetinalGrid
         The grid of the map; the implant must fit inside it.
     responsivity_a_per_w : float, optional
-        Photodiode responsivity, A/W, in (0, 2]. By default the silicon
-        limit at ``wavelength_nm`` (:func:`silicon_responsivity_limit_a_per_w`),
-        an upper bound.
+        Photodiode responsivity, A/W, in (0, 0.9] and at most the silicon limit
+        at ``wavelength_nm``. By default the implant's own
+        (``implant.responsivity_a_per_w``) or, without one, the silicon limit
+        at ``wavelength_nm``, an upper bound
+        (:func:`~stimplan.implant.geometry.silicon_responsivity_limit_a_per_w`).
     wavelength_nm : float
-        Used only for the default responsivity.
+        The illumination wavelength, nm, in (200, 1100].
+
+    Notes
+    -----
+    The current divides by ``implant.diodes_in_series``
+    (:func:`~stimplan.implant.photodiode.pixel_photocurrent_ua`).
 
     Returns
     -------
@@ -278,11 +292,11 @@ def pixel_readout(
     keep = np.float64 if raw.dtype == np.float64 else np.float32  # no precision lost
     irr = validate.finite_array("irradiance_mw_per_mm2", raw, shape=grid.shape, lo=0.0, dtype=keep)
     if responsivity_a_per_w is None:
-        resp = silicon_responsivity_limit_a_per_w(wavelength_nm)
+        given, field = implant.responsivity_a_per_w, "implant.responsivity_a_per_w"
     else:
-        resp = validate.number(
-            "responsivity_a_per_w", responsivity_a_per_w, lo=0, hi=2.0, lo_open=True
-        )
+        given, field = responsivity_a_per_w, "responsivity_a_per_w"
+    resp, is_limit = pixel_responsivity(given, wavelength_nm, field=field)
+    n_series = implant.diodes_in_series
     raster = implant.rasterize(grid, "active")
     m = raster.matrix
     flat = np.ascontiguousarray(irr).reshape(-1)
@@ -302,8 +316,12 @@ def pixel_readout(
         mean_irradiance_mw_per_mm2=mean,
         min_irradiance_mw_per_mm2=lo,
         max_irradiance_mw_per_mm2=hi,
-        photocurrent_ua=resp * power_mw * 1e3,
+        photocurrent_ua=pixel_photocurrent_ua(
+            power_mw * 1e3, responsivity_a_per_w=resp, diodes_in_series=n_series
+        ),
         responsivity_a_per_w=resp,
+        diodes_in_series=n_series,
+        responsivity_is_limit=is_limit,
     )
 
 

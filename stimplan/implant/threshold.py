@@ -13,6 +13,11 @@ Each reading is the conservative one for its own question. An implant
 without a range has no threshold: the caller must refuse any view that needs
 one rather than guess.
 
+Instead of a range an implant may carry a strength–duration curve
+(:mod:`stimplan.implant.strength_duration`: rheobase and chronaxie); its
+threshold is then one value, the curve's at the pulse width of the step,
+and both readings use it. An implant has a range or a curve, not both.
+
 References
 ----------
 .. [1] K. Mathieson et al., "Photovoltaic retinal prosthesis with high pixel
@@ -20,7 +25,7 @@ References
    irradiances 0.2 to 10 mW/mm² with 0.5-4 ms pulses, rat retina in vitro,
    70 µm bipolar pixels.
 .. [2] T. W. Huang et al., "Vertical-junction photodiodes for smaller pixels
-   in retinal prostheses", *J. Neural Eng.* 18(3) (2021),
+   in retinal prostheses", *J. Neural Eng.* 18(3), 036015 (2021),
    doi:10.1088/1741-2552/abe6b8, abstract: full-field threshold
    0.057 ± 0.029 mW/mm² with 10 ms pulses (RCS rats, VEP; monopolar
    vertical-junction pixels of 55-20 µm).
@@ -35,6 +40,7 @@ from .. import validate
 from ..errors import ConfigError
 
 __all__ = [
+    "HUANG_2021",
     "MATHIESON_2012",
     "StimulationThreshold",
     "check_threshold",
@@ -49,6 +55,14 @@ MATHIESON_2012 = (
     "pixels differ: 70 µm bipolar pixels, not 55 µm",
 )
 
+#: The range of Huang et al. (2021) [2]_ (mean ± one SD) and its source text.
+HUANG_2021 = (
+    (0.028, 0.086),
+    "Huang et al., J. Neural Eng. 18(3), 036015 (2021), abstract: full-field threshold "
+    "0.057 ± 0.029 mW/mm² with 10 ms pulses, RCS rats, VEP, vertical-junction monopolar "
+    "pixels of 55-20 µm (the range is mean ± one SD; it holds for 10 ms pulses)",
+)
+
 
 @dataclass(frozen=True, kw_only=True)
 class StimulationThreshold:
@@ -60,18 +74,26 @@ class StimulationThreshold:
         Ends of the range of peak retinal irradiance, mW/mm², ``low <= high``.
     source : str
         The publication (or "given by the user"), with its conditions.
+    pulse_ms : float, optional
+        The pulse width a strength–duration curve was read at (None for a range).
+    model : {"range", "weiss", "lapicque"}
+        A published range, or the law of the curve.
     """
 
     low_mw_per_mm2: float
     high_mw_per_mm2: float
     source: str
+    pulse_ms: float | None = None
+    model: str = "range"
 
     def as_pair(self) -> list[float]:
         """``[low, high]``, mW/mm²."""
         return [self.low_mw_per_mm2, self.high_mw_per_mm2]
 
 
-def check_threshold(pair: Any, source: Any) -> tuple[tuple[float, float] | None, str | None]:
+def check_threshold(
+    pair: Any, source: Any, *, has_curve: bool = False
+) -> tuple[tuple[float, float] | None, str | None]:
     """Validate an implant's ``threshold_mw_per_mm2`` and ``threshold_source``.
 
     Parameters
@@ -80,7 +102,10 @@ def check_threshold(pair: Any, source: Any) -> tuple[tuple[float, float] | None,
         ``[low, high]``, mW/mm², each in the range of
         ``stimulation_threshold_mw_per_mm2`` (:mod:`stimplan.ranges`), ``low <= high``.
     source : str or None
-        Where the range comes from.
+        Where the range (or the strength–duration curve) comes from.
+    has_curve : bool
+        Whether the implant has a strength–duration curve (then no range, and
+        the source is the curve's).
 
     Returns
     -------
@@ -91,9 +116,20 @@ def check_threshold(pair: Any, source: Any) -> tuple[tuple[float, float] | None,
     if source is not None and not isinstance(source, str):
         raise ConfigError("implant.threshold_source", source, "a string")
     if pair is None:
-        if source is not None:
-            raise ConfigError("implant.threshold_source", source, "only with threshold_mw_per_mm2")
-        return None, None
+        if source is not None and not has_curve:
+            raise ConfigError(
+                "implant.threshold_source",
+                source,
+                "only with threshold_mw_per_mm2 or threshold_rheobase_mw_per_mm2",
+            )
+        return None, source
+    if has_curve:
+        raise ConfigError(
+            field,
+            pair,
+            "not with a strength–duration curve (threshold_rheobase_mw_per_mm2)",
+            "give a range or a curve, not both",
+        )
     if isinstance(pair, (int, float)) and not isinstance(pair, bool):
         pair = (pair, pair)  # one measured value: a range of zero width
     if not isinstance(pair, (list, tuple)) or len(pair) != 2:
@@ -106,35 +142,59 @@ def check_threshold(pair: Any, source: Any) -> tuple[tuple[float, float] | None,
     return (lo, hi), source
 
 
-def stimulation_threshold(implant: Any) -> StimulationThreshold:
-    """The implant's threshold range, or a :class:`ConfigError` when it has none.
+def stimulation_threshold(implant: Any, *, pulse_ms: float | None = None) -> StimulationThreshold:
+    """The implant's threshold, or a :class:`ConfigError` when it has none.
 
     Parameters
     ----------
     implant : Implant
+    pulse_ms : float, optional
+        The pulse width of the step, ms: needed when the implant's threshold is
+        a strength–duration curve, not used with a range.
 
     Returns
     -------
     StimulationThreshold
+        The range, or the curve's value at ``pulse_ms`` (``low == high``).
 
     Raises
     ------
     ConfigError
-        Naming ``implant.threshold_mw_per_mm2`` when no range is known (no
-        published threshold for this preset, nor one given by the user).
+        Naming ``implant.threshold_mw_per_mm2`` when no threshold is known (no
+        published one for this preset, nor one given by the user); naming
+        ``pulse_ms`` when a curve needs one, or it lies outside the curve's pulse
+        widths.
 
     References
     ----------
     .. [1] Mathieson et al. (2012); Huang et al. (2021): see the module notes.
     """
+    curve = implant.strength_duration
+    if curve is not None:
+        if pulse_ms is None:
+            raise ConfigError(
+                "pulse_ms",
+                None,
+                "the pulse width of the step, ms",
+                f"implant {implant.name!r} has a strength–duration threshold",
+            )
+        value = curve.threshold_mw_per_mm2(pulse_ms)
+        return StimulationThreshold(
+            low_mw_per_mm2=value,
+            high_mw_per_mm2=value,
+            source=f"{curve.describe()}, at {float(pulse_ms):g} ms pulses",
+            pulse_ms=float(pulse_ms),
+            model=curve.law,
+        )
     pair = implant.threshold_mw_per_mm2
     if pair is None:
         raise ConfigError(
             "implant.threshold_mw_per_mm2",
             None,
-            "a measured range [low, high] in mW/mm²",
+            "a measured range [low, high] in mW/mm², or a strength–duration curve",
             f"no sourced stimulation threshold for implant {implant.name!r}: give "
-            "threshold_mw_per_mm2 = [low, high] (and threshold_source) under [implant]",
+            "threshold_mw_per_mm2 = [low, high], or threshold_rheobase_mw_per_mm2 and "
+            "threshold_chronaxie_ms (and threshold_source) under [implant]",
         )
     source = implant.threshold_source or "given by the user ([implant] threshold_mw_per_mm2)"
     return StimulationThreshold(low_mw_per_mm2=pair[0], high_mw_per_mm2=pair[1], source=source)

@@ -29,6 +29,7 @@ __all__ = [
     "print_table",
     "budget_text",
     "mask_entry",
+    "stimulus_pulse_ms",
     "stimulus_view",
     "view_entry",
     "view_text",
@@ -37,8 +38,27 @@ __all__ = [
 ]
 
 
-def stimulus_view(plan, sp, power_mw: float):
+def stimulus_pulse_ms(plan, sp) -> float | None:
+    """The pulse width of the first lit frame that shows the stimulus, ms (None if none
+    does): the frame whose laser power the summary's figures use."""
+    for f in plan.frames:
+        if f.hologram_index == sp.hologram_index and f.lit:
+            return float(f.pulse_ms)
+    return None
+
+
+def stimulus_view(plan, sp, power_mw: float, pulse_ms: float | None = None):
     """The implant's view of one stimulus at ``power_mw`` of laser power.
+
+    Parameters
+    ----------
+    plan, sp
+        The plan and the stimulus's plan.
+    power_mw : float
+        Laser power, mW.
+    pulse_ms : float, optional
+        Pulse width for a strength–duration threshold; by default that of the
+        first lit frame showing the stimulus (:func:`stimulus_pulse_ms`).
 
     Returns
     -------
@@ -48,18 +68,21 @@ def stimulus_view(plan, sp, power_mw: float):
     Raises
     ------
     ConfigError
-        When the implant has no threshold range (no sourced one, none given).
+        When the implant has no threshold (no sourced one, none given), or its
+        strength–duration curve does not hold at the pulse width.
     """
     implant = plan.spec.implant
     if implant is None or sp.readout is None or sp.on is None:
         return None
-    threshold = stimulation_threshold(implant)
+    if pulse_ms is None:
+        pulse_ms = stimulus_pulse_ms(plan, sp)
+    threshold = stimulation_threshold(implant, pulse_ms=pulse_ms)
     return implant_view(sp.readout, sp.on, threshold=threshold, scale=power_mw / REFERENCE_POWER_MW)
 
 
 def view_entry(plan, sp, power_mw: float) -> dict | None:
-    """The `check --json` entry of the implant's view (at the entry's laser power), or
-    the reason it is refused."""
+    """The `check --json` entry of the implant's view (at the entry's laser power and
+    the pulse width of the same frame), or the reason it is refused."""
     if power_mw <= 0:
         return None
     try:
@@ -276,12 +299,21 @@ def view_text(entry: dict | None) -> str:
     if entry["threshold_mw_per_mm2"] is None:
         return "refused: " + entry["refused"]
     lo, hi = entry["threshold_mw_per_mm2"]
-    return (
-        f"{entry['on_below']} of {entry['on_pixels']} ON pixels under {hi:.3g} mW/mm² "
+    pulse = entry.get("pulse_ms")
+    at = "" if pulse is None else f" (the curve at {pulse:g} ms pulses)"
+    text = (
+        f"{entry['on_below']} of {entry['on_pixels']} ON pixels under {hi:.3g} mW/mm²{at} "
         f"(may not stimulate), {entry['off_above']} of {entry['off_pixels']} OFF pixels over "
         f"{lo:.3g} mW/mm² (may stimulate) at {entry['laser_power_mw']:.3g} mW; "
         f"threshold from {entry['source']}"
     )
+    cur = entry.get("photocurrent_ua")
+    if cur is not None and cur["on_min"] is not None:
+        text += (
+            f"; dimmest ON pixel {cur['on_min']:.3g} µA ({entry['responsivity_a_per_w']:.3g} A/W, "
+            f"{entry['responsivity']}, {entry['diodes_in_series']} diode(s) in series)"
+        )
+    return text
 
 
 def _num(x):

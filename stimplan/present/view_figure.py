@@ -2,7 +2,8 @@
 
 Every pixel cell is filled with its photodiode irradiance over the high end
 of the implant's threshold range (log scale: the published ranges span
-decades); the colour bar marks both ends. ON pixels under the high end
+decades); the colour bar marks both ends (one value for a strength–duration
+curve, read at the step's pulse width). ON pixels under the high end
 (may not stimulate) and OFF pixels over the low end (may stimulate) get a
 heavy outline of their own colour.
 """
@@ -118,9 +119,14 @@ def view_figure(plt, implant, view: ImplantView, *, power_mw: float):
     )
     ax.set_xlabel("x (µm)")
     ax.set_ylabel("y (µm)")
+    against = (
+        f"the threshold range {t.low_mw_per_mm2:.3g}-{t.high_mw_per_mm2:.3g} mW/mm²"
+        if t.pulse_ms is None
+        else f"the strength–duration threshold {t.low_mw_per_mm2:.3g} mW/mm² at {t.pulse_ms:g} "
+        "ms pulses"
+    )
     ax.set_title(
-        f"at {power_mw:.3g} mW: mean irradiance on each photodiode against the threshold range "
-        f"{t.low_mw_per_mm2:.3g}-{t.high_mw_per_mm2:.3g} mW/mm²",
+        f"at {power_mw:.3g} mW: mean irradiance on each photodiode against {against}",
         fontsize=9,
     )
     return fig

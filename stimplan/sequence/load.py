@@ -13,6 +13,7 @@ from .. import validate
 from ..baseline import MASK_PRESETS
 from ..errors import ConfigError
 from ..exposure import check_wavelength
+from ..implant import pixel_responsivity
 from ..optics.system import Eye, Illumination, OpticalSystem
 from ..tolerance import ToleranceRanges
 from .keys import (
@@ -274,6 +275,16 @@ def _assemble(
             retry=False,
         )
     implant, has_implant = read_implant(report, raw)
+    if implant is not None and laser is not None and implant.responsivity_a_per_w is not None:
+        # a responsivity above one electron per photon at the file's own wavelength
+        try:
+            pixel_responsivity(
+                implant.responsivity_a_per_w,
+                laser.wavelength_nm,
+                field="implant.responsivity_a_per_w",
+            )
+        except ConfigError as exc:
+            report.add_exc(exc, "implant.responsivity_a_per_w")
     holo = read_hologram(report, raw, seed, has_implant)
     mask = read_section(report, raw, "mask", make_mask, "mask", keep=("kind",))
     protocol = None

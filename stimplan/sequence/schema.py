@@ -140,6 +140,12 @@ class ImplantTable(_Table):
     name: str | None = None
     threshold_mw_per_mm2: Any = None  # a pair [low, high]; each element checked with its index
     threshold_source: str | None = None
+    responsivity_a_per_w: float | None = None
+    diodes_in_series: int | None = _WHOLE
+    threshold_rheobase_mw_per_mm2: float | None = None
+    threshold_chronaxie_ms: float | None = None
+    threshold_law: str | None = None
+    threshold_pulse_range_ms: Any = None  # a pair [shortest, longest]; checked with its index
 
 
 #: The keys of ``[hologram]`` that set the phase retrieval
