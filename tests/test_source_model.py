@@ -374,3 +374,49 @@ def test_the_prediction_notes_say_what_the_source_does(rng):
     text = " ".join(pred.notes)
     assert "25.0% of the light" in text  # (1 - 0.5) / 2, by hand
     assert "blurred by the source's angular spread" in text
+
+
+# -- the report shows the loss chain ---------------------------------------------------------
+
+
+def test_summary_and_report_show_the_loss_chain():
+    # common practice (energy conservation): with every loss of the bench switched on, the
+    # light budget's entries still sum to the laser power (within 0.1 %), each loss is its
+    # own line, and the table and the report print the chain with the cautions.
+    import io
+
+    from stimplan.cautions import CAUTIONS
+    from stimplan.plan import plan_sequence
+    from stimplan.present.report import render_report
+    from stimplan.present.summary import plan_summary, print_table
+
+    from .scenarios import gui_sequence
+
+    text = gui_sequence(1.0).replace(
+        'profile = "gaussian"', 'profile = "gaussian"\ndegree_of_polarisation = 0.8'
+    )
+    text = text.replace("phase_levels = 256", "phase_levels = 256\nreflectance = 0.75")
+    text = text.replace("[optics.relay]", "[optics.relay]\ntransmission = 0.9")
+    plan = plan_sequence(parse_sequence(text), progress=False)
+    try:
+        summary = plan_summary(plan)
+        src = summary["source_and_losses"]
+        assert src["modulated_share"] == pytest.approx(0.9)  # (1 + 0.8) / 2, by hand
+        assert src["slm_reflectance"] == 0.75 and src["relay_transmission"] == 0.9
+        for row in summary["stimuli"]:
+            b = row["light_budget"]
+            assert sum(b[k] for k in BUDGET_LABELS) == pytest.approx(b["laser_mw"], rel=1e-3)
+            # 25 % of the light on the pixels is not reflected (fill factor 0.93, by hand)
+            on_slm = row["laser_power_mw"]
+            assert b["slm_absorbed_mw"] == pytest.approx(0.25 * 0.93 * on_slm, rel=1e-9)
+            assert b["relay_lost_mw"] == pytest.approx(0.75 * 0.1 * 0.93 * on_slm, rel=1e-9)
+            assert b["cross_polarised_mw"] > 0
+        out = io.StringIO()
+        print_table(plan, file=out)
+        table = out.getvalue()
+        assert "source and loss chain" in table and "not reflected by the SLM" in table
+        assert "lost in the relay" in table and CAUTIONS in table
+        html = render_report(plan)
+        assert "source and loss chain" in html and "SLM reflectance" in html
+    finally:
+        plan.close()

@@ -25,7 +25,14 @@ from ..budget import BUDGET_LABELS
 from ..cautions import CAUTIONS, EDITION
 from ..errors import ConfigError
 from ..plan.evaluate import mask_exposure, max_laser_power_mw
-from .summary import budget_text, mask_entry, stimulus_rows, stimulus_view, view_text
+from .summary import (
+    budget_text,
+    mask_entry,
+    source_text,
+    stimulus_rows,
+    stimulus_view,
+    view_text,
+)
 from .view_figure import VIEW_TITLE, view_figure
 
 __all__ = ["render_report", "write_report"]
@@ -316,6 +323,10 @@ SYSTEM_LABELS = {
     "max_steer_deg": ("largest steering angle", "°"),
     "beam_diameter_at_pupil_mm": ("beam diameter at the pupil", "mm"),
     "overfills_pupil": ("beam overfills the pupil", ""),
+    "modulated_share": ("share in the SLM's modulated polarisation", ""),
+    "unmodulated_fraction": ("unmodulated share (zero order, both polarisations)", ""),
+    "optics_transmission": ("SLM reflectance × relay transmission", ""),
+    "source_blur_rms_um": ("source blur on the retina, rms per axis", "µm"),
 }
 
 #: Terms the report uses, defined once (shown under the stimuli's tables).
@@ -375,6 +386,7 @@ def render_report(plan) -> str:
             + [
                 ("wavelength", f"{sysm.illumination.wavelength_nm:g} nm"),
                 ("eye", sysm.eye.name),
+                ("source and loss chain", source_text(sysm)),
                 (
                     "mask compared against",
                     mask_entry(spec.mask)["preset"]
