@@ -556,11 +556,11 @@ class OpticalSystem:
     def unmodulated_fraction(self) -> float:
         """Share of the light through the pixel apertures that the SLM leaves unmodulated.
 
-        ``1 - m (1 - z)``: the polarisation the SLM does not modulate
+        ``(1 - m) + m z = 1 - m (1 - z)``: the polarisation the SLM does not modulate
         (``1 - m``) and the SLM's own zero-order fraction ``z`` of the rest.
         """
         m = self.illumination.modulated_share
-        return 1.0 - m * (1.0 - self.slm.zero_order_fraction)
+        return (1.0 - m) + m * self.slm.zero_order_fraction
 
     @property
     def optics_transmission(self) -> float:
