@@ -231,6 +231,21 @@ def test_a_fibre_blurs_by_its_angular_spread():
     assert sx == pytest.approx(math.sqrt(coherent_um**2 + radius_um**2 / 4.0), rel=1.5e-2)
 
 
+@pytest.mark.parametrize("blur", [SourceBlur("gaussian", 3.0), SourceBlur("disc", 6.0)])
+def test_a_blurred_map_never_holds_more_in_a_disc_than_the_unblurred_one(blur, rng):
+    # common practice (a unit-sum, non-negative kernel averages): the blurred map's power
+    # in a disc is a weighted mean of the unblurred map's powers in shifted discs. Disc
+    # sums here by scipy.ndimage.convolve with a disc footprint, mode "wrap".
+    grid = RetinalGrid((64, 64), 1.0, 1.0)
+    power = (rng.uniform(0, 1, grid.shape) ** 8).astype(np.float32)
+    yy, xx = np.mgrid[-5:6, -5:6]
+    footprint = (xx**2 + yy**2 <= 25).astype(np.float64)
+    before = ndimage.convolve(power.astype(np.float64), footprint, mode="wrap").max()
+    blurred = blur_power_map(power, grid, blur).astype(np.float64)
+    after = ndimage.convolve(blurred, footprint, mode="wrap").max()
+    assert after <= before * (1 + 1e-5)
+
+
 def test_single_mode_is_the_default_and_leaves_the_map_alone(rng):
     # common practice: a single-mode laser (M^2 = 1), polarised along the director, and a
     # lossless SLM and relay are the defaults; the map is then the coherent prediction.

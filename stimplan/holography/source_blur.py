@@ -15,6 +15,12 @@ few 1e-7 of the peak below zero, and those are set to zero (they are not
 light). The disc's samples are the disc's area share of each cell, from a 4 × 4
 sub-sampling.
 
+For the exposure: the power of the blurred map in any disc is the kernel's
+weighted average of the unblurred map's powers in the same disc moved about,
+so its largest disc power never exceeds the unblurred map's. A blur that is
+overstated (``m_squared`` or a fibre larger than the source's) therefore
+understates the exposure; the unblurred map bounds it whatever the blur.
+
 References
 ----------
 .. [1] L. Mandel and E. Wolf, *Optical Coherence and Quantum Optics* (1995),
@@ -157,11 +163,12 @@ def blur_power_map(power: np.ndarray, grid: RetinalGrid, blur, *, workers: int =
         ky = gaussian_kernel_axis(rows, blur.size_um / grid.pitch_y_um)
         kx = gaussian_kernel_axis(cols, blur.size_um / grid.pitch_x_um)
         # the transform of a separable kernel is the outer product of the axes' transforms
-        spec_k = np.outer(sfft.fft(ky), sfft.rfft(kx)).astype(np.complex64)
+        spec_k = np.outer(sfft.fft(ky).astype(np.complex64), sfft.rfft(kx).astype(np.complex64))
     else:
         radius_rc = (blur.size_um / grid.pitch_y_um, blur.size_um / grid.pitch_x_um)
-        kern = disc_kernel(grid.shape, radius_rc)
-        spec_k = sfft.rfft2(kern, workers=workers).astype(np.complex64)
+        kern = disc_kernel(grid.shape, radius_rc).astype(np.float32)
+        spec_k = sfft.rfft2(kern, workers=workers)
+        del kern
     spec = sfft.rfft2(np.asarray(power, dtype=np.float32), workers=workers)
     spec *= spec_k
     out = sfft.irfft2(spec, s=grid.shape, workers=workers, overwrite_x=True)
