@@ -198,7 +198,27 @@ def source_entry(system) -> dict:
         "eye_transmission_basis": system.eye.transmission_basis,
         "source_blur": blur.describe(),
         "source_blur_rms_um": blur.rms_width_um,
+        "note": source_note(system),
     }
+
+
+def source_note(system) -> str | None:
+    """What the exposure figures take from the bench model, when it is not the ideal one."""
+    parts = []
+    if system.optics_transmission < 1.0:
+        parts.append(
+            f"the SLM's reflectance and the relay's transmission pass "
+            f"{system.optics_transmission:.3g} of the light to the eye"
+        )
+    if system.source_blur().active:
+        parts.append("the source's blur spreads the retinal map")
+    if not parts:
+        return None
+    return (
+        "; ".join(parts)
+        + ": both lower the exposure figures, which rest on them; check them against the "
+        "power and the spot measured at the eye"
+    )
 
 
 def source_text(system) -> str:
@@ -210,7 +230,7 @@ def source_text(system) -> str:
         f"unmodulated {e['unmodulated_fraction']:.1%}; SLM reflectance {e['slm_reflectance']:g}, "
         f"relay transmission {e['relay_transmission']:g}, ocular transmission "
         f"{e['eye_transmission']:.3g} ({e['eye_transmission_basis']}); "
-        f"source blur: {e['source_blur']}"
+        f"source blur: {e['source_blur']}" + (f" ({e['note']})" if e["note"] else "")
     )
 
 
