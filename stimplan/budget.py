@@ -5,26 +5,31 @@ The budget is the power account of the prediction
 SLM's aperture and followed by the implant's regions on the retina. Its
 entries are disjoint and sum to the laser power:
 
-laser = outside the SLM aperture + SLM pixel gaps + clipped at the pupil
-+ higher diffraction orders + absorbed by the ocular media + outside the
-array + between photodiodes (trenches and cell borders) + OFF photodiodes +
-ON photodiodes.
+laser = outside the SLM aperture + SLM pixel gaps + not reflected by the SLM
++ lost in the relay + clipped at the pupil + higher diffraction orders +
+absorbed by the ocular media + outside the array + between photodiodes
+(trenches and cell borders) + OFF photodiodes + ON photodiodes.
 
-Two more figures are parts of these, not entries:
+Three more figures are parts of these, not entries:
 
 zero order
-    The unmodulated light (``zero_order_fraction`` of the SLM), which lands
-    on the retina at the optical axis; it is inside the retinal entries.
+    The unmodulated light (the SLM's ``zero_order_fraction`` of the modulated
+    polarisation, and all of the other polarisation), which lands on the
+    retina at the optical axis; it is inside the retinal entries.
+cross-polarised
+    The part of the zero order that is the polarisation the SLM does not
+    modulate.
 quantisation noise
     The share of the modulated light that ``N`` phase levels scatter away
     from the designed pattern, ``1 - sinc²(1/N)`` [3]_; it is spread over the
     retinal field and so also inside the retinal entries.
 
 The *deliverable* light is what an ideal phase pattern could put on the
-retina through this SLM and eye: the light through the pixel apertures and
-the pupil, without the zero order, times the central diffraction order's
-share at its peak, after the ocular media. With a square pixel aperture of
-linear fraction ``a = sqrt(fill_factor)`` the orders' envelope is
+retina through this SLM and eye: the light through the pixel apertures, the
+SLM's reflection, the relay and the pupil, without the zero order, times the
+central diffraction order's share at its peak, after the ocular media. With
+a square pixel aperture of linear fraction ``a = sqrt(fill_factor)`` the
+orders' envelope is
 ``sinc²(a k)`` per axis [1]_, and ``Σ_k sinc²(a k) = 1/a`` for ``a <= 1``
 (Poisson summation: the transform of ``sinc²`` is a triangle of half-width
 ``a``), so the central order holds at most ``a² = fill_factor`` of the light
@@ -69,6 +74,8 @@ __all__ = [
 BUDGET_LABELS = {
     "outside_slm_mw": "outside the SLM aperture",
     "pixel_gaps_mw": "SLM pixel gaps",
+    "slm_absorbed_mw": "not reflected by the SLM",
+    "relay_lost_mw": "lost in the relay",
     "pupil_clipped_mw": "clipped at the pupil",
     "higher_orders_mw": "higher diffraction orders",
     "ocular_absorbed_mw": "absorbed by the ocular media",
@@ -120,14 +127,16 @@ class LightBudget:
     """Where the laser power of one stimulus goes, mW (see the module notes).
 
     The entries named in :data:`BUDGET_LABELS` sum to ``laser_mw``.
-    ``zero_order_mw`` and ``quantisation_noise_mw`` are parts of the retinal
-    entries; ``deliverable_mw`` is the most an ideal pattern could put on the
-    retina.
+    ``zero_order_mw`` (with its part ``cross_polarised_mw``) and
+    ``quantisation_noise_mw`` are parts of the retinal entries;
+    ``deliverable_mw`` is the most an ideal pattern could put on the retina.
     """
 
     laser_mw: float
     outside_slm_mw: float
     pixel_gaps_mw: float
+    slm_absorbed_mw: float
+    relay_lost_mw: float
     pupil_clipped_mw: float
     higher_orders_mw: float
     ocular_absorbed_mw: float
@@ -138,6 +147,7 @@ class LightBudget:
     zero_order_mw: float
     quantisation_noise_mw: float
     deliverable_mw: float
+    cross_polarised_mw: float = 0.0
 
     def entries(self) -> dict[str, float]:
         """The disjoint entries, laser to photodiodes."""
@@ -188,8 +198,12 @@ def light_budget(
     slm_fraction : float
         Share of the laser's power that falls on the SLM, in (0, 1]
         (:func:`gaussian_fraction_on_aperture`, or 1 for a measured beam).
-    fill_factor, zero_order_fraction : float
+    fill_factor : float
         Of the SLM.
+    zero_order_fraction : float
+        The share of the light through the pixel apertures that is not
+        modulated: the system's ``unmodulated_fraction`` (the SLM's zero order
+        and the polarisation it does not modulate).
     phase_levels : int
         Phase levels of the SLM (for the quantisation noise).
     eye_transmission : float
@@ -212,12 +226,19 @@ def light_budget(
     on, off = float(on_photodiodes_mw), float(off_photodiodes_mw)
     foot, retina = float(footprint_mw), float(retina_mw)
     laser = account.input_mw / f_in
-    through_pupil = account.input_mw * ff - account.pupil_clipped_mw
+    through_pupil = (
+        account.input_mw * ff
+        - account.slm_absorbed_mw
+        - account.relay_lost_mw
+        - account.pupil_clipped_mw
+    )
     modulated_on_retina = account.field_mw
     return LightBudget(
         laser_mw=laser,
         outside_slm_mw=laser - account.input_mw,
         pixel_gaps_mw=account.pixel_gaps_mw,
+        slm_absorbed_mw=account.slm_absorbed_mw,
+        relay_lost_mw=account.relay_lost_mw,
         pupil_clipped_mw=account.pupil_clipped_mw,
         higher_orders_mw=account.higher_orders_mw,
         ocular_absorbed_mw=account.ocular_absorbed_mw,
@@ -228,6 +249,7 @@ def light_budget(
         zero_order_mw=account.zero_order_mw,
         quantisation_noise_mw=modulated_on_retina * (1.0 - quantisation_efficiency(phase_levels)),
         deliverable_mw=through_pupil * (1.0 - z) * ff * tau,
+        cross_polarised_mw=account.cross_polarised_mw,
     )
 
 

@@ -63,6 +63,15 @@ RANGES = MappingProxyType(
         "fresnel_focal_mm": PhysicalRange(
             1.0, 1e7, "|f| under 1 mm aliases on any SLM pixel; beyond 10 km the lens is flat"
         ),
+        "m_squared": PhysicalRange(
+            1.0,
+            1e4,
+            "M² is 1 for a Gaussian beam and never less; high-power multimode diodes reach "
+            "hundreds to thousands",
+        ),
+        "fibre_core_um": PhysicalRange(
+            1.0, 3000.0, "multimode fibre cores range from tens of µm to a few mm"
+        ),
         "slm_pitch_um": PhysicalRange(
             1.0, 200.0, "phase SLMs have pixels of a few to a few tens of µm"
         ),

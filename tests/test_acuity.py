@@ -103,9 +103,10 @@ def test_presets_are_eyes_with_sources_in_docstring():
     for name, eye in EYE_PRESETS.items():
         assert isinstance(eye, Eye)
         assert eye.name == name
-        # Source: Boettner & Wolter, Invest. Ophthalmol. 1, 776 (1962): at most ~84 % below
-        # 850 nm, so a NIR transmission estimate must not exceed that (from memory: ~0.8).
-        assert 0.5 < eye.transmission <= 0.84
+        # common practice: a transmission; its bound against Boettner & Wolter (1962) and
+        # Hale & Querry (1973) is checked in tests/test_source_model.py
+        assert 0.5 < eye.transmission <= 1.0
+        assert "Hale & Querry" in eye.transmission_basis
     doc = eye_preset.__doc__ or ""
     assert "Drasdo" in doc and "Remtulla" in doc
 

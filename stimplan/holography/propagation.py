@@ -16,6 +16,12 @@ hologram design controls:
 * the phase is the quantised, realised phase of the SLM's levels;
 * the unmodulated fraction forms the zero-order spot as the beam really
   focuses (defocused when a Fresnel lens term is used);
+* the polarisation the SLM does not modulate goes to the zero order with
+  the SLM's own unmodulated fraction;
+* the SLM reflects ``reflectance`` of the light on its pixels and the relay
+  passes ``transmission`` of it;
+* a source that is not a single transverse mode blurs the map by its angular
+  spread (:mod:`stimplan.holography.source_blur`);
 * the eye's pupil clips the relayed beam and the ocular media absorb
   ``1 - transmission``.
 
@@ -43,6 +49,7 @@ from ..grid import RetinalGrid
 from . import kernels
 from .kernels import gather_scaled
 from .quantize import grey_map_for
+from .source_blur import blur_power_map
 
 __all__ = [
     "far_field",
@@ -172,6 +179,12 @@ class PowerAccount:
         Laser power on the SLM.
     pixel_gaps_mw : float
         Light on the inactive space between SLM pixels, ``(1 - fill_factor)``.
+    slm_absorbed_mw : float
+        Light on the pixel apertures that the SLM does not reflect,
+        ``(1 - reflectance)``.
+    relay_lost_mw : float
+        Light leaving the SLM that the relay does not pass,
+        ``(1 - relay transmission)``.
     pupil_clipped_mw : float
         Light whose relayed image falls outside the eye's pupil.
     higher_orders_mw : float
@@ -185,6 +198,11 @@ class PowerAccount:
         Modulated light reaching the retina.
     signal_mw : float or None
         The part of ``field_mw`` inside the signal region, if one was given.
+    slm_absorbed_mw, relay_lost_mw : float
+        See above (0 for an ideal SLM and relay).
+    cross_polarised_mw : float
+        The part of ``zero_order_mw`` that is the polarisation the SLM does
+        not modulate (not an entry of the sum: it is inside ``zero_order_mw``).
     """
 
     input_mw: float
@@ -195,6 +213,9 @@ class PowerAccount:
     zero_order_mw: float
     field_mw: float
     signal_mw: float | None = None
+    slm_absorbed_mw: float = 0.0
+    relay_lost_mw: float = 0.0
+    cross_polarised_mw: float = 0.0
 
     @property
     def elsewhere_mw(self) -> float | None:
@@ -210,6 +231,8 @@ class PowerAccount:
         """Sum of all destinations; equals ``input_mw``."""
         return (
             self.pixel_gaps_mw
+            + self.slm_absorbed_mw
+            + self.relay_lost_mw
             + self.pupil_clipped_mw
             + self.higher_orders_mw
             + self.ocular_absorbed_mw
@@ -390,12 +413,15 @@ def predict_retina(
     amp, pupil, beam_in_pupil_mw = _beam_on_slm(system)
     p_in = float(system.illumination.power_mw)
     ff = slm.fill_factor
-    z = slm.zero_order_fraction
+    z = system.unmodulated_fraction  # the SLM's zero order and the other polarisation
+    refl, relay_t = slm.reflectance, system.relay.transmission
+    rt = refl * relay_t
     tau = system.eye.transmission
     p_apert = ff * p_in
     p_pupil = ff * beam_in_pupil_mw
     clipped = max(p_apert - p_pupil, 0.0)  # float rounding can leave -1e-9
     p_pupil = p_apert - clipped
+    blur = system.source_blur()
 
     grid = system.prediction_grid(s)
     padded = grid.shape
@@ -415,7 +441,8 @@ def predict_retina(
         mod_phase = mod_phase - corr
     if err is not None:
         mod_phase = mod_phase + err
-    power_mod = _far_power(amp, mod_phase, pupil, padded, env_r, env_c, 1.0 - z, workers)
+    power_mod = _far_power(amp, mod_phase, pupil, padded, env_r, env_c, (1.0 - z) * rt, workers)
+    power_mod = blur_power_map(power_mod, grid, blur, workers=workers)
     region = None
     if signal_region is not None:
         region = validate.finite_array("signal_region", signal_region, shape=padded, lo=0, hi=1)
@@ -436,7 +463,8 @@ def predict_retina(
                 zphase -= corr
             if err is not None:
                 zphase += err
-        power_zero = _far_power(amp, zphase, pupil, padded, env_r, env_c, z, workers)
+        power_zero = _far_power(amp, zphase, pupil, padded, env_r, env_c, z * rt, workers)
+        power_zero = blur_power_map(power_zero, grid, blur, workers=workers)
         zero_pre = float(power_zero.sum(dtype=np.float64))
         field_mw_pre, signal_pre = (
             kern.sums_and_scale(power_mod.reshape(-1), region, True, np.float32(1), np.float32(1))
@@ -453,22 +481,42 @@ def predict_retina(
         )
         irr = power_mod
     central = field_mw_pre + zero_pre
-    higher = p_pupil - central
+    higher = rt * p_pupil - central
     signal = None if region is None else tau * float(signal_pre)
+    cross = 1.0 - system.illumination.modulated_share  # of the light, all unmodulated
     account = PowerAccount(
         input_mw=p_in,
         pixel_gaps_mw=(1.0 - ff) * p_in,
-        pupil_clipped_mw=clipped,
+        pupil_clipped_mw=rt * clipped,
         higher_orders_mw=higher,
         ocular_absorbed_mw=(1.0 - tau) * central,
         zero_order_mw=tau * zero_pre,
         field_mw=tau * field_mw_pre,
         signal_mw=signal,
+        slm_absorbed_mw=(1.0 - refl) * p_apert,
+        relay_lost_mw=refl * (1.0 - relay_t) * p_apert,
+        cross_polarised_mw=tau * zero_pre * (cross / z if z > 0 else 0.0),
     )
-    notes = ()
+    return RetinalPrediction(irr, grid, account, s, (0.0, 0.0), _notes(system, blur))
+
+
+def _notes(system, blur) -> tuple[str, ...]:
+    """What the prediction says about the beam, the polarisation and the source."""
+    notes = []
     if system.overfills_pupil:
-        notes = ("beam overfills the pupil: light clipped",)
-    return RetinalPrediction(irr, grid, account, s, (0.0, 0.0), notes)
+        notes.append("beam overfills the pupil: light clipped")
+    share = system.illumination.modulated_share
+    if share < 1.0:
+        notes.append(
+            f"{1.0 - share:.1%} of the light is in the polarisation the SLM does not "
+            "modulate: it goes to the zero order"
+        )
+    if blur.active:
+        notes.append(
+            f"the retinal map is blurred by the source's angular spread ({blur.describe()}); "
+            "the same map without the blur bounds its disc powers from above"
+        )
+    return tuple(notes)
 
 
 def predict_from_levels(level_index: np.ndarray, system, **kwargs) -> RetinalPrediction:

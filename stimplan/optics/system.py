@@ -32,6 +32,13 @@ from .. import validate
 from ..errors import ConfigError
 from ..grid import RetinalGrid
 from ..io_images import read_scalar_image
+from .source import (
+    NO_BLUR,
+    SourceBlur,
+    fibre_blur_radius_um,
+    gaussian_blur_sigma_um,
+    modulated_share,
+)
 
 __all__ = [
     "SLM",
@@ -77,8 +84,15 @@ class SLM:
         is nearest (mod 2π) to the level's phase, and the prediction uses the
         measured phase.
     zero_order_fraction : float
-        Fraction of the light leaving the pixel apertures that the SLM
-        leaves unmodulated (it forms the zero order), in [0, 1).
+        Fraction of the modulated polarisation's light leaving the pixel
+        apertures that the SLM leaves unmodulated (it forms the zero order),
+        in [0, 1). The polarisation the SLM does not modulate goes to the zero
+        order as well (:attr:`OpticalSystem.unmodulated_fraction`).
+    reflectance : float
+        Share of the light on the pixel apertures that the SLM reflects
+        (mirror, cover glass, liquid-crystal absorption), in (0, 1]. Default
+        1: the ideal, lossless SLM; set your measured value (no published
+        figure holds for every device).
 
     References
     ----------
@@ -94,6 +108,7 @@ class SLM:
     grey_2pi: int | None = None
     lut_file: str | None = None
     zero_order_fraction: float = 0.0
+    reflectance: float = 1.0  # ideal; set your measured value (common practice)
 
     def __post_init__(self) -> None:
         f = object.__setattr__
@@ -126,6 +141,11 @@ class SLM:
             validate.number(
                 "slm.zero_order_fraction", self.zero_order_fraction, lo=0, hi=1, hi_open=True
             ),
+        )
+        f(
+            self,
+            "reflectance",
+            validate.number("slm.reflectance", self.reflectance, lo=0, hi=1, lo_open=True),
         )
         if self.lut_file is not None and not isinstance(self.lut_file, (str, Path)):
             raise ConfigError("slm.lut_file", self.lut_file, "a file path")
@@ -179,10 +199,29 @@ class Illumination:
         shape. Grey values are mapped linearly so that the full range of the
         image's integer type is 2π, or, for float images, taken as radians.
         It is added to every hologram before quantisation.
+    degree_of_polarisation : float
+        ``P`` in [0, 1]: the polarised share of the light. Default 1, a
+        polarised laser (the ideal case); a fibre-coupled multimode diode is
+        close to 0 (:mod:`stimplan.optics.source`).
+    polarisation_angle_deg : float
+        Angle between the light's polarisation and the SLM's liquid-crystal
+        director, degrees (default 0: aligned). The SLM modulates the share
+        ``(1 + P cos 2θ) / 2``; the rest goes to the zero order.
+    m_squared : float
+        Beam propagation ratio ``M²`` >= 1 (default 1: a single-mode laser, no
+        blur). Above 1 the retinal map is blurred by a Gaussian of the
+        source's extra angular spread; needs ``profile = "gaussian"`` (the
+        waist sets the diffraction-limited divergence).
+    fibre_core_um, fibre_na : float, optional
+        A multimode fibre's core diameter (µm) and numerical aperture,
+        collimated onto the SLM into a beam of radius ``waist_mm``: the
+        retinal map is blurred by a uniform disc (the fibre's angular spread).
+        Both or neither; not together with ``m_squared > 1``.
 
     References
     ----------
     .. [1] A. E. Siegman, *Lasers* (1986), ch. 17 (Gaussian beams).
+    .. [2] ISO 11146-1:2005 (beam propagation ratio; from memory).
     """
 
     wavelength_nm: float = 880.0
@@ -191,6 +230,11 @@ class Illumination:
     waist_mm: float = 3.0
     amplitude_file: str | None = None
     correction_phase_file: str | None = None
+    degree_of_polarisation: float = 1.0
+    polarisation_angle_deg: float = 0.0
+    m_squared: float = 1.0
+    fibre_core_um: float | None = None
+    fibre_na: float | None = None
 
     def __post_init__(self) -> None:
         f = object.__setattr__
@@ -214,6 +258,82 @@ class Illumination:
             raise ConfigError(
                 "illumination.amplitude_file", None, "a file path when profile = 'file'"
             )
+        self._check_source()
+
+    def _check_source(self) -> None:
+        """Validate the polarisation and coherence fields and the rules between them."""
+        f = object.__setattr__
+        f(
+            self,
+            "degree_of_polarisation",
+            validate.number(
+                "illumination.degree_of_polarisation", self.degree_of_polarisation, lo=0, hi=1
+            ),
+        )
+        f(
+            self,
+            "polarisation_angle_deg",
+            validate.physical(
+                "illumination.polarisation_angle_deg", self.polarisation_angle_deg, "angle_deg"
+            ),
+        )
+        f(
+            self,
+            "m_squared",
+            validate.physical("illumination.m_squared", self.m_squared, "m_squared"),
+        )
+        if self.modulated_share <= 0.0:
+            raise ConfigError(
+                "illumination.polarisation_angle_deg",
+                self.polarisation_angle_deg,
+                "an angle that leaves some light in the SLM's modulated polarisation",
+                "fully polarised light across the liquid crystal's director is not modulated",
+            )
+        given = [k for k in ("fibre_core_um", "fibre_na") if getattr(self, k) is not None]
+        if len(given) == 1:
+            other = "fibre_na" if given[0] == "fibre_core_um" else "fibre_core_um"
+            raise ConfigError(
+                f"illumination.{other}", None, "given with " + given[0], "a fibre needs both"
+            )
+        if given:
+            f(
+                self,
+                "fibre_core_um",
+                validate.physical(
+                    "illumination.fibre_core_um", self.fibre_core_um, "fibre_core_um"
+                ),
+            )
+            f(
+                self,
+                "fibre_na",
+                validate.number("illumination.fibre_na", self.fibre_na, lo=0, hi=1, lo_open=True),
+            )
+            if self.m_squared != 1.0:
+                raise ConfigError(
+                    "illumination.m_squared",
+                    self.m_squared,
+                    "1 with a fibre (fibre_core_um, fibre_na)",
+                    "the fibre's core and NA already set the angular spread",
+                )
+        if (given or self.m_squared > 1.0) and self.profile != "gaussian":
+            key = "fibre_core_um" if given else "m_squared"
+            raise ConfigError(
+                f"illumination.{key}",
+                getattr(self, key),
+                "a single-mode source unless profile = 'gaussian'",
+                "the angular spread of a multimode source is computed from the beam radius "
+                "waist_mm on the SLM; flat and measured profiles are not supported",
+            )
+
+    @property
+    def modulated_share(self) -> float:
+        """Share of the light in the polarisation the SLM modulates, ``(1 + P cos 2θ) / 2``."""
+        return modulated_share(self.degree_of_polarisation, self.polarisation_angle_deg)
+
+    @property
+    def single_mode(self) -> bool:
+        """True for a single transverse mode (no blur of the retinal map)."""
+        return self.m_squared == 1.0 and self.fibre_core_um is None
 
     @property
     def wavelength_mm(self) -> float:
@@ -279,6 +399,10 @@ class Relay:
         a disc of diameter about ``D_slm * f_eff / fresnel_focal_mm``. Positive
         or negative; its magnitude must be at least ``N p² / λ`` so that the
         lens phase is sampled by the pixels without aliasing.
+    transmission : float
+        Share of the light leaving the SLM that the relay (lenses, mirrors,
+        filters) passes to the eye, in (0, 1]. Default 1: an ideal, lossless
+        relay; set your measured value.
 
     References
     ----------
@@ -288,12 +412,18 @@ class Relay:
 
     magnification: float = 1.0
     fresnel_focal_mm: float | None = None
+    transmission: float = 1.0  # ideal; set your measured value (common practice)
 
     def __post_init__(self) -> None:
         object.__setattr__(
             self,
             "magnification",
             validate.physical("relay.magnification", self.magnification, "magnification"),
+        )
+        object.__setattr__(
+            self,
+            "transmission",
+            validate.number("relay.transmission", self.transmission, lo=0, hi=1, lo_open=True),
         )
         if self.fresnel_focal_mm is not None:
             fl = validate.physical(
@@ -316,8 +446,12 @@ class Eye:
         Pupil diameter, mm, > 0.
     transmission : float
         Transmission of the ocular media at the working wavelength, in (0, 1].
+        The presets compute it at the planned wavelength
+        (:func:`stimplan.optics.eye.eye_preset`).
     name : str
         A label (``"human"``, ``"rat"``, ``"mouse"`` or ``"custom"``).
+    transmission_basis : str
+        Where ``transmission`` comes from, in words (shown in the report).
 
     References
     ----------
@@ -330,6 +464,7 @@ class Eye:
     pupil_diameter_mm: float = 7.0
     transmission: float = 0.8
     name: str = "custom"
+    transmission_basis: str = "given"
 
     def __post_init__(self) -> None:
         f = object.__setattr__
@@ -348,6 +483,8 @@ class Eye:
             "transmission",
             validate.number("eye.transmission", self.transmission, lo=0, hi=1, lo_open=True),
         )
+        if not isinstance(self.transmission_basis, str):
+            raise ConfigError("eye.transmission_basis", self.transmission_basis, "a string")
 
     @property
     def focal_length_mm(self) -> float:
@@ -413,6 +550,43 @@ class OpticalSystem:
                     f"|f| >= {f_min:.1f} mm",
                     "a shorter lens is aliased by the SLM pixels (N p² / λ)",
                 )
+
+    # -- source and losses -------------------------------------------------
+    @property
+    def unmodulated_fraction(self) -> float:
+        """Share of the light through the pixel apertures that the SLM leaves unmodulated.
+
+        ``(1 - m) + m z = 1 - m (1 - z)``: the polarisation the SLM does not modulate
+        (``1 - m``) and the SLM's own zero-order fraction ``z`` of the rest.
+        """
+        m = self.illumination.modulated_share
+        return (1.0 - m) + m * self.slm.zero_order_fraction
+
+    @property
+    def optics_transmission(self) -> float:
+        """SLM reflectance times relay transmission: the bench's share up to the pupil."""
+        return self.slm.reflectance * self.relay.transmission
+
+    def source_blur(self) -> SourceBlur:
+        """The blur of the retinal map by the source's angular spread."""
+        ill = self.illumination
+        if ill.fibre_core_um is not None:
+            r = fibre_blur_radius_um(
+                core_diameter_um=ill.fibre_core_um,
+                na=ill.fibre_na,
+                beam_radius_mm=ill.waist_mm,
+                effective_focal_mm=self.effective_focal_mm,
+            )
+            return SourceBlur("disc", r)
+        if ill.m_squared > 1.0:
+            sigma = gaussian_blur_sigma_um(
+                wavelength_nm=ill.wavelength_nm,
+                waist_mm=ill.waist_mm,
+                m_squared=ill.m_squared,
+                effective_focal_mm=self.effective_focal_mm,
+            )
+            return SourceBlur("gaussian", sigma)
+        return NO_BLUR
 
     # -- derived scales ---------------------------------------------------
     @property
@@ -518,4 +692,8 @@ class OpticalSystem:
             "max_steer_deg": self.max_steer_deg,
             "beam_diameter_at_pupil_mm": self.beam_diameter_at_pupil_mm,
             "overfills_pupil": self.overfills_pupil,
+            "modulated_share": self.illumination.modulated_share,
+            "unmodulated_fraction": self.unmodulated_fraction,
+            "optics_transmission": self.optics_transmission,
+            "source_blur_rms_um": self.source_blur().rms_width_um,
         }

@@ -179,7 +179,7 @@ def _evaluate(name, stim, index, spec, system, holo, workers, design=None) -> St
         acc,
         slm_fraction=slm_fraction(system),
         fill_factor=slm.fill_factor,
-        zero_order_fraction=slm.zero_order_fraction,
+        zero_order_fraction=system.unmodulated_fraction,
         phase_levels=slm.phase_levels,
         eye_transmission=system.eye.transmission,
         retina_mw=acc.retina_mw,

@@ -28,6 +28,7 @@ from ..plan.evaluate import mask_exposure, max_laser_power_mw
 from .summary import (
     budget_text,
     mask_entry,
+    source_text,
     stimulus_rows,
     stimulus_view,
     tolerance_text,
@@ -323,6 +324,10 @@ SYSTEM_LABELS = {
     "max_steer_deg": ("largest steering angle", "°"),
     "beam_diameter_at_pupil_mm": ("beam diameter at the pupil", "mm"),
     "overfills_pupil": ("beam overfills the pupil", ""),
+    "modulated_share": ("share in the SLM's modulated polarisation", ""),
+    "unmodulated_fraction": ("unmodulated share (zero order, both polarisations)", ""),
+    "optics_transmission": ("SLM reflectance × relay transmission", ""),
+    "source_blur_rms_um": ("source blur on the retina, rms per axis", "µm"),
 }
 
 #: Terms the report uses, defined once (shown under the stimuli's tables).
@@ -382,6 +387,7 @@ def render_report(plan) -> str:
             + [
                 ("wavelength", f"{sysm.illumination.wavelength_nm:g} nm"),
                 ("eye", sysm.eye.name),
+                ("source and loss chain", source_text(sysm)),
                 (
                     "mask compared against",
                     mask_entry(spec.mask)["preset"]

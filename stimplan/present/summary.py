@@ -28,6 +28,8 @@ __all__ = [
     "plan_summary",
     "print_table",
     "budget_text",
+    "source_entry",
+    "source_text",
     "mask_entry",
     "stimulus_pulse_ms",
     "stimulus_view",
@@ -261,6 +263,7 @@ def plan_summary(plan) -> dict:
             "pupil_mm": system.eye.pupil_diameter_mm,
             "overfills_pupil": system.overfills_pupil,
         },
+        "source_and_losses": source_entry(system),
         "cautions": CAUTIONS,
     }
     return json_safe(out)
@@ -278,6 +281,56 @@ def mask_entry(mask) -> dict:
     }
 
 
+def source_entry(system) -> dict:
+    """The source model and the bench's losses, as figures (shares of the light)."""
+    ill, blur = system.illumination, system.source_blur()
+    return {
+        "degree_of_polarisation": ill.degree_of_polarisation,
+        "polarisation_angle_deg": ill.polarisation_angle_deg,
+        "modulated_share": ill.modulated_share,
+        "unmodulated_fraction": system.unmodulated_fraction,
+        "slm_reflectance": system.slm.reflectance,
+        "relay_transmission": system.relay.transmission,
+        "eye_transmission": system.eye.transmission,
+        "eye_transmission_basis": system.eye.transmission_basis,
+        "source_blur": blur.describe(),
+        "source_blur_rms_um": blur.rms_width_um,
+        "note": source_note(system),
+    }
+
+
+def source_note(system) -> str | None:
+    """What the exposure figures take from the bench model, when it is not the ideal one."""
+    parts = []
+    if system.optics_transmission < 1.0:
+        parts.append(
+            f"the SLM's reflectance and the relay's transmission pass "
+            f"{system.optics_transmission:.3g} of the light to the eye"
+        )
+    if system.source_blur().active:
+        parts.append("the source's blur spreads the retinal map")
+    if not parts:
+        return None
+    return (
+        "; ".join(parts)
+        + ": both lower the exposure figures, which rest on them; check them against the "
+        "power and the spot measured at the eye"
+    )
+
+
+def source_text(system) -> str:
+    """One line: the source model and the loss chain's factors."""
+    e = source_entry(system)
+    return (
+        f"modulated polarisation {e['modulated_share']:.1%} (degree of polarisation "
+        f"{e['degree_of_polarisation']:g}, {e['polarisation_angle_deg']:g}° to the director), "
+        f"unmodulated {e['unmodulated_fraction']:.1%}; SLM reflectance {e['slm_reflectance']:g}, "
+        f"relay transmission {e['relay_transmission']:g}, ocular transmission "
+        f"{e['eye_transmission']:.3g} ({e['eye_transmission_basis']}); "
+        f"source blur: {e['source_blur']}" + (f" ({e['note']})" if e["note"] else "")
+    )
+
+
 def budget_text(budget: dict) -> str:
     """One line: the laser power, each entry's share and the ON photodiodes' shares."""
     laser = budget["laser_mw"]
@@ -287,8 +340,13 @@ def budget_text(budget: dict) -> str:
         + ", ".join(parts)
         + f"; ON photodiodes {budget['on_share_of_laser']:.1%} of the laser, "
         f"{budget['on_share_of_deliverable']:.1%} of the deliverable "
-        f"{budget['deliverable_mw']:.3g} mW (zero order {budget['zero_order_mw'] / laser:.2%}, "
-        f"quantisation noise {budget['quantisation_noise_mw'] / laser:.2%}, both on the retina)"
+        f"{budget['deliverable_mw']:.3g} mW (zero order {budget['zero_order_mw'] / laser:.2%}"
+        + (
+            f", of which the unmodulated polarisation {budget['cross_polarised_mw'] / laser:.2%}"
+            if budget.get("cross_polarised_mw", 0.0) > 0
+            else ""
+        )
+        + f", quantisation noise {budget['quantisation_noise_mw'] / laser:.2%}, both on the retina)"
     )
 
 
@@ -386,6 +444,7 @@ def print_table(plan, file=None) -> None:
         + (m["preset"] or f"{m['kind']}, efficiency {m['efficiency']:.3g}, custom figures"),
         file=file,
     )
+    print(f"source and loss chain: {source_text(plan.spec.system)}", file=file)
     for r in s["stimuli"]:
         if r["light_budget"] is not None:
             print(f"light budget, {r['name']}: {budget_text(r['light_budget'])}", file=file)

@@ -250,14 +250,16 @@ def _assemble(
         except ConfigError as exc:
             report.add_exc(exc, "seed")
     slm, laser, relay = read_optics(report, raw, base_dir)
+    eye_at = ()  # a preset eye's transmission is computed at the planned wavelength
     if laser is not None:
         # a sequence is planned with its exposure assessed: refuse, at the file's own
         # key and line, a wavelength whose limits are not implemented
         try:
             check_wavelength(laser.wavelength_nm, "optics.laser.wavelength_nm")
+            eye_at = (laser.wavelength_nm,)
         except ConfigError as exc:
             report.add_exc(exc, "optics.laser.wavelength_nm")
-    eye = read_eye(report, raw)
+    eye = read_eye(report, raw, *eye_at)
     system = None
     if None not in (slm, laser, relay, eye):
         remaps = {"slm": "optics.slm", "illumination": "optics.laser", "relay": "optics.relay"}

@@ -77,6 +77,7 @@ class SlmTable(_Table):
     grey_2pi: int | None = _WHOLE
     lut_file: str | None = None
     zero_order_fraction: float | None = None
+    reflectance: float | None = None
 
 
 class LaserTable(_Table):
@@ -88,6 +89,11 @@ class LaserTable(_Table):
     waist_mm: float | None = None
     amplitude_file: str | None = None
     correction_phase_file: str | None = None
+    degree_of_polarisation: float | None = None
+    polarisation_angle_deg: float | None = None
+    m_squared: float | None = None
+    fibre_core_um: float | None = None
+    fibre_na: float | None = None
 
 
 class RelayTable(_Table):
@@ -95,6 +101,7 @@ class RelayTable(_Table):
 
     magnification: float | None = None
     fresnel_focal_mm: float | None = None
+    transmission: float | None = None
 
 
 class OpticsTable(_Table):
@@ -113,6 +120,7 @@ class EyeTable(_Table):
     focal_length_mm: float | None = None
     pupil_diameter_mm: float | None = None
     transmission: float | None = None
+    transmission_basis: str | None = None
     name: str | None = None
 
 

@@ -18,7 +18,7 @@ from ..errors import ConfigError, StimplanError
 from ..exposure import ProtocolCap
 from ..holography.ifta import IftaSettings
 from ..implant import IMPLANT_PRESETS, Implant, implant_preset
-from ..optics.eye import EYE_PRESETS, eye_preset
+from ..optics.eye import EYE_PRESETS, PRESET_WAVELENGTH_NM, eye_preset
 from ..optics.system import SLM, Eye, Illumination, Relay
 from ..stimuli.base import STIMULUS_KINDS, Stimulus
 from ..stimuli.registry import stimulus_from_dict
@@ -63,7 +63,7 @@ def _make_slm(**kw: Any) -> SLM:
     return SLM(**kw)
 
 
-def _make_eye(**kw: Any) -> Eye:
+def _make_eye(wavelength_nm: float = PRESET_WAVELENGTH_NM, **kw: Any) -> Eye:
     preset = kw.pop("preset", None)
     fl = kw.pop("focal_length_mm", None)
     if "name" in kw and not isinstance(kw["name"], str):
@@ -79,7 +79,7 @@ def _make_eye(**kw: Any) -> Eye:
     if preset is not None:
         if not isinstance(preset, str):
             raise ConfigError("eye.preset", preset, "one of " + ", ".join(map(repr, EYE_PRESETS)))
-        return eye_preset(preset, **kw)
+        return eye_preset(preset, wavelength_nm=wavelength_nm, **kw)
     if "um_per_deg" not in kw:
         raise ConfigError(
             "eye.um_per_deg",
@@ -155,7 +155,10 @@ def read_optics(
     return tuple(out)
 
 
-def read_eye(report: ErrorReport, raw: Mapping[str, Any]) -> Eye | None:
+def read_eye(
+    report: ErrorReport, raw: Mapping[str, Any], wavelength_nm: float = PRESET_WAVELENGTH_NM
+) -> Eye | None:
+    """The ``[eye]`` section; a preset's transmission is computed at ``wavelength_nm``."""
     if "eye" not in raw:  # reported by the schema
         return None
     tbl = report.table(raw, "eye", "eye")
@@ -164,7 +167,7 @@ def read_eye(report: ErrorReport, raw: Mapping[str, Any]) -> Eye | None:
     kw = report.usable(tbl, "eye")
     return build_collecting(
         report,
-        _make_eye,
+        lambda **kw: _make_eye(wavelength_nm, **kw),
         kw,
         "eye",
         lambda f: rebase_path(f, "eye", "eye"),
