@@ -146,13 +146,15 @@ class Hologram:
         workers: int = -1,
         signal_region: np.ndarray | None = None,
         focus_error_rad: np.ndarray | None = None,
+        source_blur: bool = True,
     ) -> RetinalPrediction:
         """Predicted retina for this hologram on ``system``.
 
         The signal region of the power account is the target's lit area
         (``signal_region``, if the caller has it on the prediction grid already).
         ``focus_error_rad`` is the phase of an error of the eye's focus
-        (:func:`stimplan.optics.aberration.focus_error_phase_rad`).
+        (:func:`stimplan.optics.aberration.focus_error_phase_rad`); ``source_blur=False``
+        predicts without the source's blur (:func:`predict_retina`).
         """
         lut = grey_map_for(system.slm)
         if signal_region is None:
@@ -166,6 +168,7 @@ class Hologram:
             oversample=oversample,
             signal_region=region,
             focus_error_rad=focus_error_rad,
+            source_blur=source_blur,
             workers=workers,
         )
 

@@ -46,6 +46,7 @@ import scipy.fft as sfft
 from .. import validate
 from ..errors import ConfigError
 from ..grid import RetinalGrid
+from ..optics.source import SourceBlur
 from . import kernels
 from .kernels import gather_scaled
 from .quantize import grey_map_for
@@ -61,6 +62,7 @@ __all__ = [
     "RetinalPrediction",
     "predict_retina",
     "predict_from_levels",
+    "zero_order_irradiance",
 ]
 
 
@@ -366,6 +368,7 @@ def predict_retina(
     oversample: int = 2,
     signal_region: np.ndarray | None = None,
     focus_error_rad: np.ndarray | None = None,
+    source_blur: bool = True,
     workers: int = -1,
 ) -> RetinalPrediction:
     """Predict retinal irradiance for a phase pattern shown on the SLM.
@@ -386,6 +389,14 @@ def predict_retina(
     signal_region : ndarray, optional
         Weights in [0, 1] on the prediction grid (area coverage of the signal
         region); when given, ``account.signal_mw`` is filled in.
+    focus_error_rad : ndarray, optional
+        Phase of a focusing error of the eye on the SLM pixels (radians, from
+        :func:`stimplan.optics.aberration.focus_error_phase_rad`), applied to
+        the modulated and the unmodulated light alike.
+    source_blur : bool
+        Blur the map by the source's angular spread (``False``: the map of a
+        single-mode source, whose disc powers bound the blurred map's from
+        above; the exposure estimate uses it).
     workers : int
         Threads for the FFT.
 
@@ -395,10 +406,12 @@ def predict_retina(
 
     Notes
     -----
-    The modulated and the unmodulated light are added in intensity
-    (incoherently); the zero-order fraction is a small, partly incoherent
-    part of the light in practice, and intensity addition keeps the power
-    account exact.
+    The modulated and the unmodulated light are added in intensity: the mean
+    over their relative phase, which is not known (and which flicker
+    averages out). Intensity addition keeps the power account exact. Where
+    the zero order is coherent with the signal, the irradiance at a place
+    can reach ``(sqrt(I_mod) + sqrt(I_zero))²``; the exposure estimate uses
+    that bound (:func:`stimplan.holography.zero_order.coherent_zero_order_bound`).
 
     References
     ----------
@@ -421,13 +434,11 @@ def predict_retina(
     p_pupil = ff * beam_in_pupil_mw
     clipped = max(p_apert - p_pupil, 0.0)  # float rounding can leave -1e-9
     p_pupil = p_apert - clipped
-    blur = system.source_blur()
+    blur = system.source_blur() if source_blur else SourceBlur()
 
     grid = system.prediction_grid(s)
     padded = grid.shape
-    env_r, env_c = pixel_aperture_axes(padded, padded, float(np.sqrt(ff)))
-    # bin power = ff² · env · |C_k|² for a field whose |c_n|² is the power on cell n
-    env_r *= np.float32(ff * ff)
+    env_r, env_c = _envelope_axes(system, padded)
 
     lens = system.fresnel_phase_rad()
     corr = system.illumination.correction_phase_rad(slm)
@@ -454,17 +465,7 @@ def predict_retina(
 
     zero_pre = 0.0
     if z > 0:
-        zphase = None
-        if lens is not None or corr is not None or err is not None:
-            zphase = np.zeros(slm.shape, np.float32)
-            if lens is not None:
-                zphase -= lens
-            if corr is not None:
-                zphase -= corr
-            if err is not None:
-                zphase += err
-        power_zero = _far_power(amp, zphase, pupil, padded, env_r, env_c, z * rt, workers)
-        power_zero = blur_power_map(power_zero, grid, blur, workers=workers)
+        power_zero = _unmodulated_power(system, grid, env_r, env_c, err, blur, workers)
         zero_pre = float(power_zero.sum(dtype=np.float64))
         field_mw_pre, signal_pre = (
             kern.sums_and_scale(power_mod.reshape(-1), region, True, np.float32(1), np.float32(1))
@@ -498,6 +499,65 @@ def predict_retina(
         cross_polarised_mw=tau * zero_pre * (cross / z if z > 0 else 0.0),
     )
     return RetinalPrediction(irr, grid, account, s, (0.0, 0.0), _notes(system, blur))
+
+
+def _envelope_axes(system, padded: tuple[int, int]) -> tuple[np.ndarray, np.ndarray]:
+    """The separable pixel envelope of the prediction grid, the rows' axis carrying ff²."""
+    ff = system.slm.fill_factor
+    env_r, env_c = pixel_aperture_axes(padded, padded, float(np.sqrt(ff)))
+    # bin power = ff² · env · |C_k|² for a field whose |c_n|² is the power on cell n
+    env_r *= np.float32(ff * ff)
+    return env_r, env_c
+
+
+def _unmodulated_power(system, grid, env_r, env_c, err, blur, workers) -> np.ndarray:
+    """Far-field power (mW per sample, float32) of the light the SLM leaves unmodulated: the
+    beam as it focuses with the lens, correction and focus-error terms it does not cancel."""
+    slm = system.slm
+    lens = system.fresnel_phase_rad()
+    corr = system.illumination.correction_phase_rad(slm)
+    zphase = None
+    if lens is not None or corr is not None or err is not None:
+        zphase = np.zeros(slm.shape, np.float32)
+        if lens is not None:
+            zphase -= lens
+        if corr is not None:
+            zphase -= corr
+        if err is not None:
+            zphase += err
+    amp, pupil, _ = _beam_on_slm(system)
+    scale = system.unmodulated_fraction * system.optics_transmission
+    power = _far_power(amp, zphase, pupil, grid.shape, env_r, env_c, scale, workers)
+    return blur_power_map(power, grid, blur, workers=workers)
+
+
+def zero_order_irradiance(
+    system, *, oversample: int = 2, source_blur: bool = True, workers: int = -1
+) -> np.ndarray | None:
+    """The retinal irradiance (mW/mm², float32) of the unmodulated light alone, or None.
+
+    The same map as the zero order's part of :func:`predict_retina` (it does
+    not depend on the hologram): the beam through the pupil, with the
+    Fresnel lens and correction terms that only the modulated light cancels,
+    the pixel envelope, the ocular transmission. None when the SLM leaves no
+    light unmodulated.
+
+    References
+    ----------
+    .. [1] Goodman (2005), §4.2 and §4.2.2 (eq. 4-28).
+    """
+    if system.unmodulated_fraction <= 0:
+        return None
+    s = validate.integer("oversample", oversample, lo=2, hi=16)
+    grid = system.prediction_grid(s)
+    env_r, env_c = _envelope_axes(system, grid.shape)
+    blur = system.source_blur() if source_blur else SourceBlur()
+    power = _unmodulated_power(system, grid, env_r, env_c, None, blur, workers)
+    kern = kernels.SERIAL if workers == 1 else kernels.PARALLEL
+    tau32 = np.float32(system.eye.transmission)
+    inv_area = np.float32(1.0 / grid.sample_area_mm2)
+    kern.sums_and_scale(power.reshape(-1), np.zeros(1, np.float32), False, tau32, inv_area)
+    return power
 
 
 def _notes(system, blur) -> tuple[str, ...]:

@@ -88,6 +88,14 @@ class SLM:
         apertures that the SLM leaves unmodulated (it forms the zero order),
         in [0, 1). The polarisation the SLM does not modulate goes to the zero
         order as well (:attr:`OpticalSystem.unmodulated_fraction`).
+    zero_order_incoherent_share : float
+        Share of that zero order that does not interfere with the modulated
+        light (phase flicker of the liquid crystal, a relative phase that
+        drifts within a pulse), in [0, 1]. The rest is coherent with it: the
+        map shows the mean over the unknown relative phase (the two added in
+        intensity), the exposure takes the worst phase,
+        ``I_mod + I_zero + 2 sqrt(c I_mod I_zero)`` with ``c`` the coherent
+        share. Default 0: all coherent, the conservative reading.
     reflectance : float
         Share of the light on the pixel apertures that the SLM reflects
         (mirror, cover glass, liquid-crystal absorption), in (0, 1]. Default
@@ -109,6 +117,7 @@ class SLM:
     lut_file: str | None = None
     zero_order_fraction: float = 0.0
     reflectance: float = 1.0  # ideal; set your measured value (common practice)
+    zero_order_incoherent_share: float = 0.0  # all coherent: the worst case for exposure
 
     def __post_init__(self) -> None:
         f = object.__setattr__
@@ -146,6 +155,13 @@ class SLM:
             self,
             "reflectance",
             validate.number("slm.reflectance", self.reflectance, lo=0, hi=1, lo_open=True),
+        )
+        f(
+            self,
+            "zero_order_incoherent_share",
+            validate.number(
+                "slm.zero_order_incoherent_share", self.zero_order_incoherent_share, lo=0, hi=1
+            ),
         )
         if self.lut_file is not None and not isinstance(self.lut_file, (str, Path)):
             raise ConfigError("slm.lut_file", self.lut_file, "a file path")
@@ -561,6 +577,22 @@ class OpticalSystem:
         """
         m = self.illumination.modulated_share
         return (1.0 - m) + m * self.slm.zero_order_fraction
+
+    @property
+    def coherent_zero_share(self) -> float:
+        """Share of the zero order's power that can interfere with the modulated light.
+
+        ``m z (1 - s) / ((1 - m) + m z)``: only the SLM's own zero order is in the
+        modulated polarisation (the other polarisation cannot interfere with it,
+        Born & Wolf §10.9), and of it the share ``1 - s`` that is not incoherent
+        (``slm.zero_order_incoherent_share``). 0 without a zero order.
+        """
+        u = self.unmodulated_fraction
+        if u <= 0.0:
+            return 0.0
+        m = self.illumination.modulated_share
+        z = self.slm.zero_order_fraction
+        return min(m * z * (1.0 - self.slm.zero_order_incoherent_share) / u, 1.0)
 
     @property
     def optics_transmission(self) -> float:

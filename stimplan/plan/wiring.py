@@ -13,13 +13,16 @@ from ..exposure import (
     retinal_image_diameter_um,
 )
 from ..grid import RetinalGrid
-from ..holography.propagation import with_higher_orders
+from ..holography.propagation import with_higher_orders, zero_order_irradiance
+from ..holography.zero_order import coherent_zero_order_bound
 from .spool import (
     REFERENCE_POWER_MW,
 )
 
 __all__ = [
     "exposed_frames",
+    "exposure_maps",
+    "exposure_map_notes",
     "assess_frames",
     "orders_margin",
     "with_orders_note",
@@ -69,6 +72,7 @@ def assess_frames(
         return None
     xframes = []
     margin = 0
+    exposure_map = exposure_maps(spec)
     for hi, pulses in pulses_of.items():
         sp = by_index[hi]
         grid = sp.grid
@@ -81,9 +85,8 @@ def assess_frames(
         def load(sp=sp, margin=margin):
             if which == "mask":
                 return sp.mask_prediction.irradiance_mw_per_mm2
-            pred = sp.prediction
             return with_higher_orders(
-                pred.irradiance_mw_per_mm2, pred.grid, spec.system.slm.fill_factor, margin
+                exposure_map(sp), sp.grid, spec.system.slm.fill_factor, margin
             )[0]
 
         xframes.append(
@@ -96,7 +99,7 @@ def assess_frames(
         transmission=spec.system.eye.transmission,
         source="f = 17 mm; τ = the planned eye's transmission, as in the prediction",
     )
-    return assess_sequence(
+    result = assess_sequence(
         xframes,
         grid,
         wavelength_nm,
@@ -106,6 +109,69 @@ def assess_frames(
         maxima_cache=cache,
         progress=progress,
     )
+    if which == "hologram":
+        result = replace(result, notes=(*result.notes, *exposure_map_notes(spec)))
+    return result
+
+
+def _reference_system(spec):
+    ill = replace(spec.system.illumination, power_mw=REFERENCE_POWER_MW)
+    return replace(spec.system, illumination=ill)
+
+
+def exposure_maps(spec):
+    """The function that gives a hologram's map for the exposure estimate (at 1 mW).
+
+    It is the plan's prediction, raised where the prediction shows a mean:
+
+    * with a source blur (``m_squared`` or a fibre), the map is predicted again
+      without it: a blurred map holds less in every disc than the unblurred
+      one, so an overstated blur cannot lower the figure;
+    * the coherent share of the zero order
+      (:attr:`~stimplan.optics.system.OpticalSystem.coherent_zero_share`) is
+      added at its worst phase (:func:`coherent_zero_order_bound`), with the
+      zero order's own map computed once.
+    """
+    system = _reference_system(spec)
+    blurred = system.source_blur().active
+    share = system.coherent_zero_share
+    zero: list = []
+
+    def exposure_map(sp):
+        if blurred:
+            pred = sp.hologram.predict(system, oversample=spec.oversample, source_blur=False)
+            irr = pred.irradiance_mw_per_mm2
+        else:
+            irr = sp.prediction.irradiance_mw_per_mm2
+        if share > 0.0:
+            if not zero:
+                zero.append(
+                    zero_order_irradiance(system, oversample=spec.oversample, source_blur=False)
+                )
+            irr = coherent_zero_order_bound(irr, zero[0], share)
+        return irr
+
+    return exposure_map
+
+
+def exposure_map_notes(spec) -> tuple[str, ...]:
+    """What :func:`exposure_maps` raised, in words, for the estimate's notes."""
+    system = spec.system
+    notes = []
+    share = system.coherent_zero_share
+    if share > 0.0:
+        notes.append(
+            f"The zero order ({system.unmodulated_fraction:.2%} of the light on the SLM) is "
+            f"taken as {share:.0%} coherent with the pattern at its worst phase: "
+            "I_mod + I_zero + 2 sqrt(c I_mod I_zero) at every place, above the mean the "
+            "map shows (set [optics.slm] zero_order_incoherent_share from a measurement)."
+        )
+    if system.source_blur().active:
+        notes.append(
+            "The source's blur is left out of the exposure maps (a blurred map holds less "
+            "in every disc): the estimate is that of a single-mode source of the same power."
+        )
+    return tuple(notes)
 
 
 def orders_margin(grid) -> int:

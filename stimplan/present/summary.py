@@ -305,17 +305,15 @@ def source_note(system) -> str | None:
     if system.optics_transmission < 1.0:
         parts.append(
             f"the SLM's reflectance and the relay's transmission pass "
-            f"{system.optics_transmission:.3g} of the light to the eye"
+            f"{system.optics_transmission:.3g} of the light to the eye: this lowers the "
+            "exposure figures, which rest on it; check it against the power measured at the eye"
         )
     if system.source_blur().active:
-        parts.append("the source's blur spreads the retinal map")
-    if not parts:
-        return None
-    return (
-        "; ".join(parts)
-        + ": both lower the exposure figures, which rest on them; check them against the "
-        "power and the spot measured at the eye"
-    )
+        parts.append(
+            "the source's blur spreads the retinal map shown; the exposure figures leave it "
+            "out (a single-mode source of the same power), so it cannot lower them"
+        )
+    return "; ".join(parts) if parts else None
 
 
 def source_text(system) -> str:

@@ -77,6 +77,7 @@ class SlmTable(_Table):
     grey_2pi: int | None = _WHOLE
     lut_file: str | None = None
     zero_order_fraction: float | None = None
+    zero_order_incoherent_share: float | None = None
     reflectance: float | None = None
 
 
@@ -209,10 +210,10 @@ class ToleranceTable(_Table):
     (:class:`stimplan.tolerance.ToleranceRanges`) and the robust design."""
 
     defocus_d: Any = None  # a half-width or a pair; checked by ToleranceRanges
-    cylinder_d: float | None = Field(default=None, strict=False)
+    cylinder_d: float | None = None
     depth_um: Any = None  # a half-width or a pair
-    shift_um: float | None = Field(default=None, strict=False)
-    magnification_error: float | None = Field(default=None, strict=False)
+    shift_um: float | None = None
+    magnification_error: float | None = None
     robust_design: bool | None = None
 
 
