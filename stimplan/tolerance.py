@@ -39,6 +39,7 @@ from .optics.aberration import (
     blur_diameter_um,
     depth_to_defocus_d,
     focus_error_phase_rad,
+    zero_order_focus_d,
 )
 
 __all__ = [
@@ -125,6 +126,40 @@ class ToleranceRanges:
         if self.magnification_error >= 0.5:
             raise ConfigError(
                 "tolerance.magnification_error", self.magnification_error, "in [0, 0.5)"
+            )
+
+    def spherical_range_d(self, eye_focal_mm: float) -> tuple[float, float]:
+        """The range of spherical error the cases span, dioptres: defocus plus the depth's
+        share, widened by the cylinder (which adds up to its power along one meridian)."""
+        dep = sorted(depth_to_defocus_d(v, eye_focal_mm) for v in self.depth_um)
+        return (
+            self.defocus_d[0] + dep[0] - self.cylinder_d,
+            self.defocus_d[1] + dep[1] + self.cylinder_d,
+        )
+
+    def check_zero_order(self, system) -> None:
+        """Refuse ranges under which the zero order may come to a focus on the retina.
+
+        The exposure estimate is made for the eye as planned, where the Fresnel
+        lens term keeps the zero order defocused; an eye whose error reaches
+        :func:`stimplan.optics.aberration.zero_order_focus_d` would focus it into
+        a spot the estimate does not cover.
+        """
+        d0 = zero_order_focus_d(system)
+        if d0 is None:
+            return
+        lo, hi = self.spherical_range_d(system.eye.focal_length_mm)
+        if lo <= d0 <= hi:
+            raise ConfigError(
+                "tolerance.defocus_d",
+                [round(lo, 3), round(hi, 3)],
+                f"a range of the eye's error that stays clear of {d0:+.3g} D",
+                f"an eye {d0:+.3g} D off focuses the zero order (the Fresnel lens term "
+                "f = {:g} mm, magnification {:g}) into a spot on the retina, which the "
+                "exposure estimate, made for the eye as planned, does not cover; use a "
+                "shorter lens term or a narrower range".format(
+                    system.relay.fresnel_focal_mm, system.relay.magnification
+                ),
             )
 
     def design_defocus_d(self, eye_focal_mm: float) -> float:
@@ -287,6 +322,7 @@ def analyse_tolerance(
     """
     if not isinstance(ranges, ToleranceRanges):
         raise ConfigError("tolerance", ranges, "a ToleranceRanges")
+    ranges.check_zero_order(system)
     on = np.asarray(on, dtype=bool)
     if on.shape != (implant.n_pixels,):
         raise ConfigError("on", on.shape, f"one flag per implant pixel ({implant.n_pixels})")

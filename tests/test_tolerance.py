@@ -217,3 +217,35 @@ def test_a_core_is_the_photodiode_less_the_margin():
     assert dataclasses.replace(core, active_diameter_um=30.0).active_area_um2 == pytest.approx(
         implant.active_area_um2
     )
+
+
+def test_the_zero_order_focuses_where_the_eyes_error_cancels_the_lens_term():
+    # Source: thin-lens optics (Goodman, Introduction to Fourier Optics, 3rd ed., §5.1): the
+    # lens term -π r²/(λ f) on the SLM is a power 1/f, 1/(f M²) at the pupil; an eye that
+    # adds it focuses the zero order and defocuses the modulated light by as much. For a
+    # symmetric beam, defocus by ±ΔD gives the same intensity (the far fields are complex
+    # conjugates, mirrored), so with half the light unmodulated the two maps agree.
+    base = make_system(256, magnification=0.5, profile="flat")  # a beam filling the SLM
+    f_mm = 200.0
+    system = dataclasses.replace(
+        base,
+        slm=dataclasses.replace(base.slm, zero_order_fraction=0.5),
+        relay=dataclasses.replace(base.relay, fresnel_focal_mm=f_mm),
+    )
+    d0 = 1e3 / (f_mm * 0.5**2)  # 20 D
+    from stimplan.optics.aberration import zero_order_focus_d
+
+    assert zero_order_focus_d(system) == pytest.approx(d0)
+    lens = system.fresnel_phase_rad()  # the displayed phase of a flat design: the lens alone
+    nominal = predict_retina(lens, system).irradiance_mw_per_mm2
+    err = focus_error_phase_rad(system, FocusError(defocus_d=d0))
+    swapped = predict_retina(lens, system, focus_error_rad=err).irradiance_mw_per_mm2
+    np.testing.assert_allclose(swapped, nominal, rtol=1e-3, atol=1e-4 * float(nominal.max()))
+    half = focus_error_phase_rad(system, FocusError(defocus_d=d0 / 2))
+    between = predict_retina(lens, system, focus_error_rad=half).irradiance_mw_per_mm2
+    # neither light is focused (Fresnel number (W/2)² ΔD / λ = 3 for each)
+    assert float(between.max()) < 0.5 * float(nominal.max())
+    # a tolerance range that reaches it is refused: the estimate does not cover that eye
+    with pytest.raises(ConfigError, match=r"tolerance\.defocus_d.*\+20 D"):
+        ToleranceRanges(defocus_d=(0.0, 25.0)).check_zero_order(system)
+    ToleranceRanges(defocus_d=5.0).check_zero_order(system)

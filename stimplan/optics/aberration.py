@@ -44,6 +44,7 @@ __all__ = [
     "blur_diameter_um",
     "depth_to_defocus_d",
     "largest_defocus_d",
+    "zero_order_focus_d",
 ]
 
 #: Refractive index of the vitreous (Atchison & Smith 2000, from memory); the
@@ -58,8 +59,10 @@ class FocusError:
     Parameters
     ----------
     defocus_d : float
-        Spherical error, dioptres (positive: the light focuses in front of the
-        photodiodes, as in myopia; the sign only flips the blur's orientation).
+        Spherical error, dioptres (positive: converging power added, as the
+        Fresnel lens term adds; the light focuses in front of the photodiodes,
+        as in myopia). The sign decides whether the zero order, which the lens
+        term leaves defocused, comes closer to a focus (:func:`zero_order_focus_d`).
     cylinder_d : float
         Astigmatism: extra power along one meridian, dioptres.
     cylinder_axis_deg : float
@@ -132,6 +135,23 @@ def largest_defocus_d(system) -> float:
     m = system.relay.magnification
     w_mm = max(slm.width_mm, slm.height_mm)
     return system.illumination.wavelength_mm / (m * m * w_mm * slm.pitch_um * 1e-3) * 1e3
+
+
+def zero_order_focus_d(system) -> float | None:
+    """The eye's error (dioptres) at which the zero order comes to a focus on the retina.
+
+    The Fresnel lens term ``-π r² / (λ f)`` on the SLM is a lens of power
+    ``1 / f``; imaged to the pupil with magnification ``M`` it is ``1 / (f M²)``.
+    The relay is refocused for the modulated light, which carries it, so the
+    zero order, which does not, is defocused by that much: an eye whose error
+    (:func:`focus_error_phase_rad`'s sign) is ``+1 / (f M²)`` focuses it.
+    None without a lens term (the zero order is then focused in the planned eye).
+    """
+    f_mm = system.relay.fresnel_focal_mm
+    if f_mm is None:
+        return None
+    m = system.relay.magnification
+    return 1e3 / (f_mm * m * m)
 
 
 def focus_error_phase_rad(system, error: FocusError) -> np.ndarray | None:

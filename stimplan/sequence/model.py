@@ -439,6 +439,7 @@ class SequenceSpec:
         if self.tolerance is not None:
             if not isinstance(self.tolerance, ToleranceRanges):
                 raise ConfigError("tolerance", self.tolerance, "a ToleranceRanges or None")
+            self.tolerance.check_zero_order(self.system)
             if self.tolerance.robust_design and not self.implant_aware:
                 raise ConfigError(
                     "tolerance.robust_design",
