@@ -425,7 +425,7 @@ def test_summary_and_report_show_the_loss_chain():
         src = summary["source_and_losses"]
         assert src["modulated_share"] == pytest.approx(0.9)  # (1 + 0.8) / 2, by hand
         assert src["slm_reflectance"] == 0.75 and src["relay_transmission"] == 0.9
-        assert "check them against the power" in src["note"]
+        assert "check it against the power" in src["note"]
         for row in summary["stimuli"]:
             b = row["light_budget"]
             assert sum(b[k] for k in BUDGET_LABELS) == pytest.approx(b["laser_mw"], rel=1e-3)

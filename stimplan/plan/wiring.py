@@ -109,7 +109,7 @@ def assess_frames(
         maxima_cache=cache,
         progress=progress,
     )
-    if which == "hologram":
+    if which == "hologram" and result is not None:
         result = replace(result, notes=(*result.notes, *exposure_map_notes(spec)))
     return result
 
