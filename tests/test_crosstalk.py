@@ -251,3 +251,40 @@ def test_edge_weights_are_the_box_overlaps():
     assert edge_weights(-0.5, 0.5) == pytest.approx((0.5, 0.5, 0.0))
     assert edge_weights(0.0, 0.5) == pytest.approx((0.0, 1.0, 0.0))
     assert edge_weights(0.4, 0.4) == pytest.approx((0.0, 0.75, 0.25))
+
+
+SEQUENCE = """\
+format = "stimplan-sequence/1"
+[eye]
+preset = "human"
+[optics.slm]
+pixels_x = 128
+pixels_y = 128
+pitch_um = 8.0
+fringing_um = {fringing}
+[stimuli.spot]
+kind = "spot"
+diameter_um = 100.0
+[[steps]]
+stimulus = "spot"
+duration_ms = 100
+pulse_ms = 10
+rate_hz = 10
+"""
+
+
+def test_sequence_key_builds_the_slm_and_adds_memory():
+    # common practice: a key of the file reaches the object it configures, and the
+    # estimate counts the accumulator plane the sub-pixel components need
+    from stimplan.plan.memory import FRINGING_BYTES_PER_SAMPLE, estimate_peak_bytes
+    from stimplan.sequence.load import parse_sequence
+
+    ideal = parse_sequence(SEQUENCE.format(fringing=0.0))
+    fringed = parse_sequence(SEQUENCE.format(fringing=4.0))
+    assert fringed.system.slm.fringing_um == 4.0
+    assert fringed.system.slm.fringing_samples_per_pixel == 8
+    a = estimate_peak_bytes(ideal, lanes=1)
+    b = estimate_peak_bytes(fringed, lanes=1)
+    assert b.jobs_bytes - a.jobs_bytes >= FRINGING_BYTES_PER_SAMPLE * a.retinal_samples
+    with pytest.raises(ConfigError, match="fringing_um"):
+        parse_sequence(SEQUENCE.format(fringing=9.0))
