@@ -43,9 +43,9 @@ JOB_BYTES_PER_SLM_PIXEL = 96
 #: complex64 field, its transform, the irradiance, the readout weights).
 JOB_BYTES_PER_SAMPLE = 160
 #: Extra working bytes of a prediction with fringing fields (``slm.fringing_um > 0``) per
-#: oversampled retinal sample: the complex64 accumulator of the sub-pixel components and
-#: the ideal SLM's map for the crosstalk line (12, rounded up).
-FRINGING_BYTES_PER_SAMPLE = 16
+#: oversampled retinal sample: the complex64 accumulator of the sub-pixel components, its
+#: own complex64 work plane and the ideal SLM's map for the crosstalk line (20, rounded up).
+FRINGING_BYTES_PER_SAMPLE = 24
 #: ... and per SLM pixel: the smoothed phase, its half-smoothed rows and the cancelled
 #: phase terms (float32, 12, rounded up).
 FRINGING_BYTES_PER_SLM_PIXEL = 16
