@@ -121,11 +121,14 @@ def test_blazed_grating_without_crosstalk_is_sinc_squared(period_px):
 
 @pytest.mark.parametrize("fringing_px", [0.25, 0.5])
 def test_fringing_lowers_the_first_order_more_at_high_spatial_frequency(fringing_px):
-    # Source: the trend - Persson et al., Opt. Express 20, 22334 (2012), §1: fringing
-    # fields make the phase change gradually across pixel borders, which the ideal model
-    # of a uniform phase per pixel does not predict; Moser et al., Opt. Express 27, 25046
-    # (2019), abstract: the realised wavefront deviates strongly for "phase patterns with
-    # strong variations". The value: the exact Fourier coefficient of the linear-
+    # Source: the trend - Persson et al., Opt. Express 20, 22334 (2012), §1: pixel
+    # crosstalk comes from gradual voltage changes ("fringing fields") across the border
+    # of neighbouring pixels and from elastic forces that prevent abrupt changes of the
+    # phase; Moser et al., Opt. Express 27, 25046 (2019), abstract: the realised wavefront
+    # may deviate significantly from the ideal model of a uniform response per pixel,
+    # independent of its neighbours. Finer gratings have more pixel edges per period, so
+    # the loss grows with spatial frequency; the papers' measured curves were not at hand
+    # and are not pinned here. The value: the exact Fourier coefficient of the linear-
     # transition profile (_flyback_efficiency, derived by hand above) at 16 sub-samples.
     rows, cols, q = 2, 1024, 16
     amp = np.full((rows, cols), 1 / np.sqrt(rows * cols), np.float32)

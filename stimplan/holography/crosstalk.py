@@ -8,12 +8,14 @@ gradually across each pixel edge [1]_, [2]_. A phase reset of a blazed
 grating becomes a *flyback* region that diffracts light away from the
 intended order, into the zero order and ghost orders.
 
-The model here is the common one: the realised phase is the ideal staircase
-(pixelated) phase convolved with a smoothing kernel whose width is set by the
-fringing. The kernel is a square box of side ``w = fringing_um`` (separable),
-so every pixel edge becomes a linear transition of width ``w`` between the
-two pixels' phases (``w <= pitch``). The smoothed phase is evaluated at
-``q x q`` sub-pixel sample points, and the field is ``exp(i phi_smooth)``.
+The model here is the common one (its kernel is not taken from the papers'
+text, which was not at hand beyond their abstracts and introductions; from
+memory): the realised phase is the ideal staircase (pixelated) phase convolved
+with a smoothing kernel whose width is set by the fringing. The kernel is a
+square box of side ``w = fringing_um`` (separable), so every pixel edge
+becomes a linear transition of width ``w`` between the two pixels' phases
+(``w <= pitch``). The smoothed phase is evaluated at ``q x q`` sub-pixel
+sample points, and the field is ``exp(i phi_smooth)``.
 
 The far field of the central diffraction order is computed without forming
 the ``q``-times finer plane: with a sub-pixel sample ``(j, l)`` of every pixel
@@ -36,12 +38,12 @@ exact for ``fringing_um = 0`` (it reproduces the ideal prediction) and for
 
 References
 ----------
-.. [1] M. Persson, D. Engström and M. Goksör, "Reducing the effect of pixel
-   crosstalk in phase only spatial light modulators," Opt. Express 20, 22334
-   (2012).
-.. [2] S. Moser, M. Ritsch-Marte and G. Thalhammer, "Model-based compensation
-   of pixel crosstalk in liquid crystal spatial light modulators," Opt.
-   Express 27, 25046 (2019).
+.. [1] M. Persson et al., "Reducing the effect of pixel crosstalk in phase
+   only spatial light modulators," Opt. Express 20, 22334 (2012), §1 (the
+   causes: fringing fields and elastic forces across pixel borders).
+.. [2] S. Moser et al., "Model-based compensation of pixel crosstalk in liquid
+   crystal spatial light modulators," Opt. Express 27, 25046 (2019)
+   (abstract: a full 3-D model validates a simplified, faster one).
 .. [3] J. W. Goodman, *Introduction to Fourier Optics*, 3rd ed. (2005),
    §4.2.2, eq. (4-28) (rectangular aperture).
 .. [4] G. J. Swanson, "Binary optics technology: the theory and design of

@@ -109,7 +109,7 @@ class SLM:
         samples (:mod:`stimplan.holography.crosstalk`). Default 0: no
         crosstalk, the ideal SLM. No published value holds for every device
         (it grows with the liquid-crystal layer's thickness relative to the
-        pitch [2]_, [3]_); set your device's measured value.
+        pitch, from memory; see [2]_, [3]_); set your device's measured value.
     fringing_samples : int, optional
         Sub-pixel samples per pixel and axis when ``fringing_um > 0``, in
         [2, 16], and at least ``2 / w`` for a transition of ``w`` pixels (so
@@ -124,9 +124,8 @@ class SLM:
     ----------
     .. [1] J. W. Goodman, *Introduction to Fourier Optics*, 3rd ed., §7.2
        (spatial light modulators).
-    .. [2] M. Persson, D. Engström and M. Goksör, Opt. Express 20, 22334 (2012).
-    .. [3] S. Moser, M. Ritsch-Marte and G. Thalhammer, Opt. Express 27, 25046
-       (2019).
+    .. [2] M. Persson et al., Opt. Express 20, 22334 (2012).
+    .. [3] S. Moser et al., Opt. Express 27, 25046 (2019).
     """
 
     pixels_x: int = 1024
