@@ -130,6 +130,9 @@ class LightBudget:
     ``zero_order_mw`` (with its part ``cross_polarised_mw``) and
     ``quantisation_noise_mw`` are parts of the retinal entries;
     ``deliverable_mw`` is the most an ideal pattern could put on the retina.
+    ``crosstalk_mw`` is the signal light that the SLM's fringing fields move
+    elsewhere (the prediction's :attr:`PowerAccount.crosstalk_mw`; 0 for an
+    ideal SLM): it is inside the other entries, not one of them.
     """
 
     laser_mw: float
@@ -148,6 +151,7 @@ class LightBudget:
     quantisation_noise_mw: float
     deliverable_mw: float
     cross_polarised_mw: float = 0.0
+    crosstalk_mw: float = 0.0
 
     def entries(self) -> dict[str, float]:
         """The disjoint entries, laser to photodiodes."""
@@ -250,6 +254,7 @@ def light_budget(
         quantisation_noise_mw=modulated_on_retina * (1.0 - quantisation_efficiency(phase_levels)),
         deliverable_mw=through_pupil * (1.0 - z) * ff * tau,
         cross_polarised_mw=account.cross_polarised_mw,
+        crosstalk_mw=account.crosstalk_mw or 0.0,
     )
 
 

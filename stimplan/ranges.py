@@ -75,6 +75,12 @@ RANGES = MappingProxyType(
         "slm_pitch_um": PhysicalRange(
             1.0, 200.0, "phase SLMs have pixels of a few to a few tens of µm"
         ),
+        "slm_fringing_um": PhysicalRange(
+            0.0,
+            50.0,
+            "the fringing field spreads about a liquid-crystal layer's thickness (a few µm) "
+            "across a pixel edge; it is also at most the pitch",
+        ),
         "eye_um_per_deg": PhysicalRange(
             5.0, 2000.0, "eyes range from a mouse's (tens of µm/deg) to a few times a human's"
         ),

@@ -211,6 +211,17 @@ def shifted_power(f, weight_rows, weight_cols, scale, out):  # pragma: no cover 
 
 
 @nb.njit(**_OPTS)
+def accumulate_phased(acc, f, phase_rows, phase_cols):  # pragma: no cover - compiled
+    """``acc[r, c] += f[r, c] * phase_rows[r] * phase_cols[c]`` (complex64, in place): one
+    polyphase component of a sub-pixel far field added with its shift factor."""
+    pr, pc = f.shape
+    for r in nb.prange(pr):
+        a = phase_rows[r]
+        for c in range(pc):
+            acc[r, c] += f[r, c] * (a * phase_cols[c])
+
+
+@nb.njit(**_OPTS)
 def sums_and_scale(power, region, use_region, tau, inv_area):  # pragma: no cover - compiled
     """``(sum(power), sum(power * region))`` in float64 (region ignored unless
     ``use_region``), then ``power <- (power * tau) * inv_area`` in place (float32)."""
@@ -239,6 +250,7 @@ class _Set:
         self.slm_field_shifted = nb.njit(**opts)(slm_field_shifted.py_func)
         self.shifted_power = nb.njit(**opts)(shifted_power.py_func)
         self.sums_and_scale = nb.njit(**opts)(sums_and_scale.py_func)
+        self.accumulate_phased = nb.njit(**opts)(accumulate_phased.py_func)
 
 
 #: Kernels that use numba's thread pool (one hologram at a time, all cores).

@@ -13,7 +13,9 @@ hologram design controls:
   speckle between the design samples is seen;
 * the pixel aperture multiplies the far field by ``sinc²`` (fill factor), and
   light outside one diffraction order goes to higher orders;
-* the phase is the quantised, realised phase of the SLM's levels;
+* the phase is the quantised, realised phase of the SLM's levels, smoothed
+  across pixel edges by the fringing field when ``slm.fringing_um > 0``
+  (:mod:`stimplan.holography.crosstalk`);
 * the unmodulated fraction forms the zero-order spot as the beam really
   focuses (defocused when a Fresnel lens term is used);
 * the polarisation the SLM does not modulate goes to the zero order with
@@ -48,6 +50,7 @@ from ..errors import ConfigError
 from ..grid import RetinalGrid
 from ..optics.source import SourceBlur
 from . import kernels
+from .crosstalk import fringed_far_power
 from .kernels import gather_scaled
 from .quantize import grey_map_for
 from .source_blur import blur_power_map
@@ -191,7 +194,8 @@ class PowerAccount:
         Light whose relayed image falls outside the eye's pupil.
     higher_orders_mw : float
         Light diffracted by the pixel grid outside the central order (it
-        does not reach the predicted field).
+        does not reach the predicted field), with what the fringing fields
+        diffract there.
     ocular_absorbed_mw : float
         Light of the central order absorbed by the ocular media.
     zero_order_mw : float
@@ -205,6 +209,12 @@ class PowerAccount:
     cross_polarised_mw : float
         The part of ``zero_order_mw`` that is the polarisation the SLM does
         not modulate (not an entry of the sum: it is inside ``zero_order_mw``).
+    crosstalk_mw : float or None
+        Signal light that the fringing fields (``slm.fringing_um``) move out of
+        the signal region: the ideal SLM's ``signal_mw`` less this one's (not an
+        entry of the sum: the light is in ``field_mw`` outside the signal, the
+        zero order and ghosts included, or in ``higher_orders_mw``). None
+        without fringing or without a signal region.
     """
 
     input_mw: float
@@ -218,6 +228,7 @@ class PowerAccount:
     slm_absorbed_mw: float = 0.0
     relay_lost_mw: float = 0.0
     cross_polarised_mw: float = 0.0
+    crosstalk_mw: float | None = None
 
     @property
     def elsewhere_mw(self) -> float | None:
@@ -452,12 +463,32 @@ def predict_retina(
         mod_phase = mod_phase - corr
     if err is not None:
         mod_phase = mod_phase + err
-    power_mod = _far_power(amp, mod_phase, pupil, padded, env_r, env_c, (1.0 - z) * rt, workers)
-    power_mod = blur_power_map(power_mod, grid, blur, workers=workers)
     region = None
     if signal_region is not None:
         region = validate.finite_array("signal_region", signal_region, shape=padded, lo=0, hi=1)
         region = np.ascontiguousarray(region, dtype=np.float32).reshape(-1)
+    ideal_signal = None
+    if slm.fringing_um > 0:
+        if region is not None:  # the ideal SLM's signal, for the account's crosstalk line
+            ideal = _far_power(amp, mod_phase, pupil, padded, env_r, env_c, (1.0 - z) * rt, workers)
+            ideal = blur_power_map(ideal, grid, blur, workers=workers)
+            ideal_signal = float(np.dot(ideal.reshape(-1).astype(np.float64), region))
+            del ideal
+        power_mod = fringed_far_power(
+            amp,
+            phase,
+            None if mod_phase is phase else mod_phase - phase,
+            pupil,
+            padded,
+            fringing_px=slm.fringing_um / slm.pitch_um,
+            samples_per_pixel=slm.fringing_samples_per_pixel,
+            fill_factor=ff,
+            scale=(1.0 - z) * rt,
+            workers=workers,
+        )
+    else:
+        power_mod = _far_power(amp, mod_phase, pupil, padded, env_r, env_c, (1.0 - z) * rt, workers)
+    power_mod = blur_power_map(power_mod, grid, blur, workers=workers)
     kern = kernels.SERIAL if workers == 1 else kernels.PARALLEL
     no_region = np.zeros(1, np.float32)
     tau32 = np.float32(tau)
@@ -497,6 +528,7 @@ def predict_retina(
         slm_absorbed_mw=(1.0 - refl) * p_apert,
         relay_lost_mw=refl * (1.0 - relay_t) * p_apert,
         cross_polarised_mw=tau * zero_pre * (cross / z if z > 0 else 0.0),
+        crosstalk_mw=None if ideal_signal is None else tau * (ideal_signal - float(signal_pre)),
     )
     return RetinalPrediction(irr, grid, account, s, (0.0, 0.0), _notes(system, blur))
 
@@ -570,6 +602,11 @@ def _notes(system, blur) -> tuple[str, ...]:
         notes.append(
             f"{1.0 - share:.1%} of the light is in the polarisation the SLM does not "
             "modulate: it goes to the zero order"
+        )
+    if system.slm.fringing_um > 0:
+        notes.append(
+            f"fringing fields of {system.slm.fringing_um:g} µm at each pixel edge smooth the "
+            f"phase ({system.slm.fringing_samples_per_pixel}² sub-pixel samples per pixel)"
         )
     if blur.active:
         notes.append(

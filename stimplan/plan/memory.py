@@ -42,6 +42,13 @@ JOB_BYTES_PER_SLM_PIXEL = 96
 #: Working bytes of one hologram job per oversampled retinal sample (the padded
 #: complex64 field, its transform, the irradiance, the readout weights).
 JOB_BYTES_PER_SAMPLE = 160
+#: Extra working bytes of a prediction with fringing fields (``slm.fringing_um > 0``) per
+#: oversampled retinal sample: the complex64 accumulator of the sub-pixel components, its
+#: own complex64 work plane and the ideal SLM's map for the crosstalk line (20, rounded up).
+FRINGING_BYTES_PER_SAMPLE = 24
+#: ... and per SLM pixel: the smoothed phase, its half-smoothed rows and the cancelled
+#: phase terms (float32, 12, rounded up).
+FRINGING_BYTES_PER_SLM_PIXEL = 16
 #: Bytes one finished hologram keeps per oversampled retinal sample (its prediction,
 #: the mask's prediction and the readout maps; measured about 26).
 STORED_BYTES_PER_SAMPLE = 32
@@ -124,10 +131,15 @@ def estimate_peak_bytes(spec, *, lanes: int | None = None, n_holograms: int | No
     # the rule by which plan_sequence spools its holograms to disk
     if count * n_slm * BYTES_PER_SLM_PIXEL * spec.oversample**2 / 4 > MEMORY_BUDGET_MB * 2**20:
         count = lanes  # spooled: only those in flight are in memory
+    per_pixel, per_sample = JOB_BYTES_PER_SLM_PIXEL, JOB_BYTES_PER_SAMPLE
+    if float(getattr(slm, "fringing_um", 0.0)) > 0:
+        # the sub-pixel components are transformed one at a time (no q-times finer plane)
+        per_pixel += FRINGING_BYTES_PER_SLM_PIXEL
+        per_sample += FRINGING_BYTES_PER_SAMPLE
     return MemoryEstimate(
         lanes=lanes,
         overhead_bytes=OVERHEAD_BYTES,
-        jobs_bytes=lanes * (JOB_BYTES_PER_SLM_PIXEL * n_slm + JOB_BYTES_PER_SAMPLE * n_ret),
+        jobs_bytes=lanes * (per_pixel * n_slm + per_sample * n_ret),
         stored_bytes=count * STORED_BYTES_PER_SAMPLE * n_ret,
         exposure_bytes=EXPOSURE_BYTES_PER_SAMPLE * n_ret,
         slm_pixels=n_slm,

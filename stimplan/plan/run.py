@@ -20,7 +20,12 @@ from .spool import (
     REFERENCE_POWER_MW,
     stimulus_key,
 )
-from .wiring import assess_frames, with_orders_note, with_settling_note
+from .wiring import (
+    assess_frames,
+    check_exposure_supported,
+    with_orders_note,
+    with_settling_note,
+)
 
 __all__ = ["plan_sequence", "resolve_frame"]
 
@@ -60,6 +65,7 @@ def plan_sequence(
     -------
     Plan
     """
+    check_exposure_supported(spec)  # before any hologram is computed
     frames_spec = expand_timeline(spec)
     system = replace(
         spec.system, illumination=replace(spec.system.illumination, power_mw=REFERENCE_POWER_MW)

@@ -6,6 +6,7 @@ from dataclasses import replace
 
 import numpy as np
 
+from ..errors import ConfigError
 from ..exposure import (
     EyeModel,
     Frame,
@@ -22,6 +23,7 @@ from .spool import (
 __all__ = [
     "exposed_frames",
     "exposure_maps",
+    "check_exposure_supported",
     "exposure_map_notes",
     "assess_frames",
     "orders_margin",
@@ -58,6 +60,8 @@ def assess_frames(
     hologram at any powers share one map and the maps are read one at a time.
     ``progress`` is called once per disc map computed.
     """
+    if which == "hologram":
+        check_exposure_supported(spec)
     pulses_of: dict[int, list] = {}
     by_index = {p.hologram_index: p for p in plans.values()}
     for fr in exposed_frames(frames):
@@ -112,6 +116,26 @@ def assess_frames(
     if which == "hologram" and result is not None:
         result = replace(result, notes=(*result.notes, *exposure_map_notes(spec)))
     return result
+
+
+def check_exposure_supported(spec) -> None:
+    """Refuse a plan whose exposure the estimate cannot bound.
+
+    With pixel crosstalk (``slm.fringing_um > 0``) the central order is
+    predicted with the fringed pixels, but the neighbouring orders the
+    estimate adds around it (:func:`with_higher_orders`) follow the ideal
+    pixel's envelope, which is not shown to bound the fringed pixels' light.
+    """
+    w = getattr(spec.system.slm, "fringing_um", 0.0)
+    if w > 0.0:
+        raise ConfigError(
+            "optics.slm.fringing_um",
+            w,
+            "0 for a plan (its exposure estimate)",
+            "with pixel crosstalk the light of the neighbouring diffraction orders is not "
+            "bounded by the estimate; predict the fringed pattern with "
+            "stimplan.holography.propagation.predict_retina, and plan with 0",
+        )
 
 
 def _reference_system(spec):

@@ -345,6 +345,12 @@ def budget_text(budget: dict) -> str:
             else ""
         )
         + f", quantisation noise {budget['quantisation_noise_mw'] / laser:.2%}, both on the retina)"
+        + (
+            f"; fringing crosstalk moved {budget['crosstalk_mw'] / laser:.2%} of the laser "
+            "off the lit region"
+            if budget.get("crosstalk_mw", 0.0) != 0.0
+            else ""
+        )
     )
 
 

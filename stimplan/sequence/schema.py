@@ -78,6 +78,8 @@ class SlmTable(_Table):
     lut_file: str | None = None
     zero_order_fraction: float | None = None
     zero_order_incoherent_share: float | None = None
+    fringing_um: float | None = None
+    fringing_samples: int | None = _WHOLE
     reflectance: float | None = None
 
 
