@@ -143,6 +143,9 @@ def test_stimulus_panel_computes_layers_in_micrometres(make_napari_viewer, qtbot
     assert row[cols.index("tolerance")].startswith("worst ON pixel"), row[cols.index("tolerance")]
     assert "3 cases" in row[cols.index("tolerance")]
     assert "not a safety approval" in readout.figures.value  # the cautions go with it
+    # the loss chain of the bench, as the CLI prints it (ideal SLM and relay here)
+    assert "source and loss chain: modulated polarisation 100.0%" in readout.figures.value
+    assert "relay transmission 1" in readout.figures.value
     assert "not a safety approval" in readout.verdict.value
 
     viewer.window.resize(1280, 1000)  # room for the canvas beside the two panels

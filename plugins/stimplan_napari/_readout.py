@@ -14,7 +14,7 @@ from napari.utils.notifications import show_warning
 
 from stimplan.cautions import CAUTION_SHORT, CAUTIONS
 from stimplan.plan.evaluate import stimulus_exposures
-from stimplan.present.summary import plan_summary, tolerance_text, view_text
+from stimplan.present.summary import plan_summary, source_text, tolerance_text, view_text
 
 from ._layers import EXPORT_KEY
 
@@ -108,6 +108,9 @@ class Readout:
         Which limit binds, its ratio and the figure that decides.
     beam_at_pupil_mm, pupil_mm : float
     overfills_pupil : bool
+    loss_chain : str
+        The source model and the bench's losses in one line
+        (:func:`stimplan.present.summary.source_text`).
     cautions : str
     """
 
@@ -124,6 +127,7 @@ class Readout:
     pupil_mm: float
     overfills_pupil: bool
     binding: str | None = None
+    loss_chain: str = ""
     cautions: str = field(default=CAUTIONS, repr=False)
 
 
@@ -173,6 +177,7 @@ def readout_from_plan(plan, title: str | None = None) -> Readout:
         pupil_mm=beam["pupil_mm"],
         overfills_pupil=beam["overfills_pupil"],
         binding=e["binding"],
+        loss_chain=source_text(plan.spec.system),
     )
 
 
@@ -267,6 +272,8 @@ def readout_text(r: Readout, *, stimuli: bool = True) -> str:
     lines.append(
         f"beam at the pupil {r.beam_at_pupil_mm:.2f} mm, pupil {r.pupil_mm:.2f} mm: {pupil}"
     )
+    if r.loss_chain:
+        lines.append(f"source and loss chain: {r.loss_chain}")
     lines.append("")
     lines.append("Caution: " + r.cautions)
     return "\n".join(lines)
