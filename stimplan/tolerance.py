@@ -119,14 +119,14 @@ class ToleranceRanges:
             self,
             "magnification_error",
             validate.number(
-                "tolerance.magnification_error", self.magnification_error, lo=0, hi=0.5
+                "tolerance.magnification_error",
+                self.magnification_error,
+                lo=0,
+                hi=0.5,
+                hi_open=True,
             ),
         )
         set_(self, "robust_design", validate.boolean("tolerance.robust_design", self.robust_design))
-        if self.magnification_error >= 0.5:
-            raise ConfigError(
-                "tolerance.magnification_error", self.magnification_error, "in [0, 0.5)"
-            )
 
     def spherical_range_d(self, eye_focal_mm: float) -> tuple[float, float]:
         """The range of spherical error the cases span, dioptres: defocus plus the depth's

@@ -69,8 +69,13 @@ def test_long_exposure_point_source():
     # Directive 2006/25/EC, Table 2.3, 700-1400 nm, t >= 10 s, alpha < 1.5 mrad:
     # E = 10 C_A C_C W/m^2. # from memory (the table's text was not found; it agrees with
     # 18 t^0.75 C_A of Table 2.2 at t = 10 s to 1.2 %, BGI 832, Table 6a)
+    # Source: Directive 2006/25/EC, Annex II, Table 2.5, as reproduced in the Norwegian
+    # Regulations concerning Action and Limit Values, Annex 4, Table 4.5 (arbeidstilsynet.no):
+    # C_A = 5.0 for 1050-1400 nm, C_C = 1.0 for 700-1150 nm. The factor 10 stays from memory.
+    assert ex.c_a(1064.0) == pytest.approx(5.0)
+    assert ex.c_c(1064.0) == pytest.approx(1.0)
     m = ex.corneal_mpe(1064.0, 100.0, 1.0)
-    assert m.irradiance_w_per_m2 == pytest.approx(50.0)
+    assert m.irradiance_w_per_m2 == pytest.approx(10.0 * 5.0 * 1.0)
 
 
 def test_audit_case_sub_nanosecond_is_refused():

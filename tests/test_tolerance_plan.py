@@ -49,7 +49,8 @@ def test_check_reports_the_worst_pixels_over_the_ranges(with_tolerance, capsys):
 
 
 def test_the_nominal_case_is_the_plans_own_readout(with_tolerance):
-    # the tolerance's in-focus, as-placed case predicts the same retina as the plan does
+    # common practice: the tolerance's in-focus, as-placed case predicts the same retina
+    # as the plan does
     spec = load_sequence(with_tolerance)
     from stimplan.plan.evaluate import stimulus_tolerances
 

@@ -48,7 +48,7 @@ import scipy.fft as sfft
 from .. import validate
 from ..errors import ConfigError
 from ..grid import RetinalGrid
-from ..optics.source import SourceBlur
+from ..optics.source import NO_BLUR
 from . import kernels
 from .crosstalk import fringed_far_power
 from .kernels import gather_scaled
@@ -445,7 +445,7 @@ def predict_retina(
     p_pupil = ff * beam_in_pupil_mw
     clipped = max(p_apert - p_pupil, 0.0)  # float rounding can leave -1e-9
     p_pupil = p_apert - clipped
-    blur = system.source_blur() if source_blur else SourceBlur()
+    blur = system.source_blur() if source_blur else NO_BLUR
 
     grid = system.prediction_grid(s)
     padded = grid.shape
@@ -583,7 +583,7 @@ def zero_order_irradiance(
     s = validate.integer("oversample", oversample, lo=2, hi=16)
     grid = system.prediction_grid(s)
     env_r, env_c = _envelope_axes(system, grid.shape)
-    blur = system.source_blur() if source_blur else SourceBlur()
+    blur = system.source_blur() if source_blur else NO_BLUR
     power = _unmodulated_power(system, grid, env_r, env_c, None, blur, workers)
     kern = kernels.SERIAL if workers == 1 else kernels.PARALLEL
     tau32 = np.float32(system.eye.transmission)
